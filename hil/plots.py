@@ -1,0 +1,68 @@
+"""PNG plots of a run (matplotlib, Agg backend: no screen needed)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+
+def _pyplot():
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Path]:
+    """roll.png: roll angle, wave roll moment and speed against time; roll_spectrum.png (Welch)."""
+    from scipy.signal import welch
+
+    plt = _pyplot()
+    t = rec["t_s"]
+    out = []
+    fig, ax = plt.subplots(3, 1, figsize=(10, 7), sharex=True)
+    ax[0].plot(t, np.degrees(rec["roll_rad"]), lw=0.7, label="roll (true)")
+    ax[0].axvspan(0, scenario.warmup_s, color="0.9", label="warm-up (not in statistics)")
+    ax[0].set_ylabel("roll, deg")
+    ax[0].legend(loc="upper right", fontsize=8)
+    ax[0].grid(alpha=0.3)
+    ax[1].plot(t, rec["wave_moment_n_m"] / 1e3, lw=0.6, label="wave")
+    if np.any(rec["external_moment_n_m"]):
+        ax[1].plot(t, rec["external_moment_n_m"] / 1e3, lw=0.9, label="external")
+    ax[1].set_ylabel("roll moment, kN·m")
+    ax[1].legend(loc="upper right", fontsize=8)
+    ax[1].grid(alpha=0.3)
+    ax[2].plot(t, rec["speed_ms"] / (1852 / 3600), lw=0.9)
+    ax[2].set_ylabel("speed, kn")
+    ax[2].set_xlabel("time, s")
+    ax[2].grid(alpha=0.3)
+    fig.suptitle(f"{scenario.name} — stabiliser off")
+    fig.tight_layout()
+    p = folder / "roll.png"
+    fig.savefig(p, dpi=110)
+    plt.close(fig)
+    out.append(p)
+
+    sel = t >= scenario.warmup_s
+    if np.count_nonzero(sel) > 256:
+        fs = 1.0 / (t[1] - t[0])
+        f, s = welch(np.degrees(rec["roll_rad"][sel]), fs=fs, nperseg=min(4096, np.count_nonzero(sel) // 4))
+        fig, ax = plt.subplots(figsize=(8, 4.5))
+        ax.plot(2 * np.pi * f, s / (2 * np.pi), lw=1.0)
+        w0 = 2 * np.pi / scenario.vessel.params.natural_period_s
+        ax.axvline(w0, color="r", ls="--", lw=0.8, label=f"natural roll frequency {w0:.3f} rad/s")
+        ax.set_xlim(0, 2.0)
+        ax.set_xlabel("encounter frequency, rad/s")
+        ax.set_ylabel("roll spectrum, deg²·s/rad")
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        ax.set_title(f"{scenario.name} — roll spectrum (Welch)")
+        fig.tight_layout()
+        p = folder / "roll_spectrum.png"
+        fig.savefig(p, dpi=110)
+        plt.close(fig)
+        out.append(p)
+    return out
