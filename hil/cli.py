@@ -162,9 +162,9 @@ def validate_file(path: str):
         elif kind == "vessel":
             read_vessel(Path(path), table, problems)
         elif kind == "controller":
-            from .controller_config import read_controller_table
+            from .controller_config import read_controller_file
 
-            read_controller_table(Path(path), table, problems)
+            read_controller_file(Path(path), table, problems)
         else:
             problems.add(Problem(str(path), "", NO_VALUE, "",
                                  "not a finloop config: expected a [scenario], [vessel] or [controller] table"))

@@ -238,7 +238,7 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     b1 = b2 = math.nan
     dr = vr.table_reader("damping")
     which_d = dr.one_of(["linear_ratio_pct", "b1_kN_m_s"])
-    restoring = disp * G * gm
+    restoring = disp * G * (gz.initial_slope_m if gz is not None else gm)
     if which_d == "linear_ratio_pct":
         ratio = dr.number("linear_ratio_pct", unit="%", lo=0.0, hi=100.0, hi_open=True, si=_pct,
                           warn_hi=20.0, warn_why="passive roll damping is usually a few percent of critical")
@@ -254,6 +254,13 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     rao = None
     if method == "rao_table":
         rao = wr.path_value("rao_file")
+        if rao is not None:
+            from plant.waves import SeaInputError, read_rao_csv
+
+            try:
+                read_rao_csv(rao)
+            except SeaInputError as exc:
+                wr.error("rao_file", str(wr.table["rao_file"]), "", f"unusable RAO table: {exc}")
     elif wr.has("rao_file"):
         wr.path_value("rao_file", must_exist=False)
         wr.error("rao_file", wr.table["rao_file"], "", "only used with method = \"rao_table\"")
@@ -326,7 +333,7 @@ def load_vessel(path: str | Path, problems: Problems | None = None) -> Vessel:
 # ----------------------------------------------------------------------------------------------
 
 
-def _read_sea(r: Reader) -> SeaSpec:
+def _read_sea(r: Reader, duration: float) -> SeaSpec:
     kind = r.string("spectrum", choices=SEA_KINDS)
     hs = tp = t1 = tz = gamma = h = per = None
     n = 300
@@ -353,6 +360,18 @@ def _read_sea(r: Reader) -> SeaSpec:
         per = r.number("period_s", unit="s", lo=0.0, lo_open=True, hi=40.0)
     elif kind == "time_series":
         file = r.path_value("file")
+        if file is not None:
+            from plant.waves import MomentRecord, SeaInputError, read_time_series_csv
+
+            try:
+                rec = read_time_series_csv(file)
+            except SeaInputError as exc:
+                r.error("file", str(r.table["file"]), "", f"unusable time series: {exc}")
+            else:
+                if isinstance(rec, MomentRecord) and duration == duration and rec.time[-1] < duration:
+                    r.error("file", str(r.table["file"]), "",
+                            f"the roll-moment record ends at {rec.time[-1]:g} s, before the run ends "
+                            f"(scenario.duration_s = {duration:g} s)")
     r.done()
     return SeaSpec(kind, hs, tp, t1, tz, gamma, n, h, per, file)
 
@@ -495,7 +514,7 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
             sr.error("duration_s", duration, "s", f"must be a whole number of control periods (1/{rate:g} s)")
     sr.done()
 
-    sea = _read_sea(top.table_reader("sea"))
+    sea = _read_sea(top.table_reader("sea"), duration)
     sensors = _read_sensors(top.table_reader("sensors", required=False))
 
     vessel = None
@@ -521,6 +540,15 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
     if sea.file is not None:
         files.append(sea.file)
 
+    if vessel is not None and vessel.wave_moment.method == "rao_table" and heading == heading and not problems.errors:
+        import numpy as np
+
+        from plant.excitation import roll_moment_model
+
+        try:
+            roll_moment_model(vessel.wave_moment, vessel.params).transfer(np.array([1.0]), heading)
+        except ValueError as exc:
+            sr.error("heading_deg", sr.table["heading_deg"], "deg", f"not covered by the vessel's RAO table ({exc})")
     if problems.errors or vessel is None:
         return None
     # speed vs heading sanity: following seas faster than the waves make the encounter period huge

@@ -65,6 +65,8 @@ NO_VALUE: Any = _MISSING
 
 
 def _show(value: Any) -> str:
+    if isinstance(value, bool):  # as written in TOML
+        return "true" if value else "false"
     if isinstance(value, str):
         return repr(value)
     if isinstance(value, float):
