@@ -277,6 +277,11 @@ def main(argv: list[str] | None = None) -> int:
     except (FileExistsError, UsageError) as exc:
         print(f"finloop {args.command}: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:  # output piped into e.g. `head`: not an error of ours
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
     except KeyboardInterrupt:
         print(f"finloop {args.command}: interrupted", file=sys.stderr)
         return 130

@@ -1,6 +1,7 @@
 """Run metrics: roll statistics and fin figures from a run's records (trade units out).
 
-Statistics are taken after the warm-up (the start-up transient of a run that starts at rest).
+Statistics are taken after the warm-up (the start-up transient of a run that starts at rest), over
+the finite rows (a run that stopped early ends with one row of NaN state).
 
 - RMS roll √(mean φ²) includes any steady heel; σ is the standard deviation about the mean.
 - Significant roll amplitude = 2σ: for a narrow-banded Gaussian process the mean of the highest
@@ -19,9 +20,10 @@ import numpy as np
 def roll_metrics(records: dict[str, np.ndarray], warmup_s: float) -> dict[str, float]:
     """Roll and fin statistics of the part of a run after ``warmup_s``."""
     t = records["t_s"]
-    sel = t >= warmup_s
-    if not np.any(sel):
-        sel = np.ones_like(t, dtype=bool)
+    finite = np.isfinite(records["roll_rad"]) & np.isfinite(records["roll_rate_rad_s"])  # a capsized last row
+    sel = (t >= warmup_s) & finite
+    if not np.any(sel):  # a run shorter than its warm-up: use what there is
+        sel = finite
     phi = np.degrees(records["roll_rad"][sel])
     p = np.degrees(records["roll_rate_rad_s"][sel])
     out = {

@@ -295,33 +295,39 @@ class Plant:
             g0 = 2 * n_sub * k
             dap = (a1p - a0p) / n_sub
             das = (a1s - a0s) / n_sub
-            for i in range(n_sub):
-                gi = g0 + 2 * i
-                xp0 = a0p + dap * i
-                xs0 = a0s + das * i
-                xpm = xp0 + 0.5 * dap
-                xsm = xs0 + 0.5 * das
-                m0, mm, m1 = mom[gi], mom[gi + 1], mom[gi + 2]
-                u0, um, u1 = spd[gi], spd[gi + 1], spd[gi + 2]
-                k1v = accel(phi, p, xp0, xs0, m0, u0)
-                k1x = p
-                p2 = p + h2 * k1v
-                k2v = accel(phi + h2 * k1x, p2, xpm, xsm, mm, um)
-                p3 = p + h2 * k2v
-                k3v = accel(phi + h2 * p2, p3, xpm, xsm, mm, um)
-                p4 = p + h * k3v
-                k4v = accel(phi + h * p3, p4, xp0 + dap, xs0 + das, m1, u1)
-                phi = phi + h6 * (k1x + 2.0 * p2 + 2.0 * p3 + p4)
-                p = p + h6 * (k1v + 2.0 * k2v + 2.0 * k3v + k4v)
+            try:
+                for i in range(n_sub):
+                    gi = g0 + 2 * i
+                    xp0 = a0p + dap * i
+                    xs0 = a0s + das * i
+                    xpm = xp0 + 0.5 * dap
+                    xsm = xs0 + 0.5 * das
+                    m0, mm, m1 = mom[gi], mom[gi + 1], mom[gi + 2]
+                    u0, um, u1 = spd[gi], spd[gi + 1], spd[gi + 2]
+                    k1v = accel(phi, p, xp0, xs0, m0, u0)
+                    k1x = p
+                    p2 = p + h2 * k1v
+                    k2v = accel(phi + h2 * k1x, p2, xpm, xsm, mm, um)
+                    p3 = p + h2 * k2v
+                    k3v = accel(phi + h2 * p2, p3, xpm, xsm, mm, um)
+                    p4 = p + h * k3v
+                    k4v = accel(phi + h * p3, p4, xp0 + dap, xs0 + das, m1, u1)
+                    phi = phi + h6 * (k1x + 2.0 * p2 + 2.0 * p3 + p4)
+                    p = p + h6 * (k1v + 2.0 * k2v + 2.0 * k3v + k4v)
+            except ValueError:  # the GZ table was left mid-step: the vessel is capsizing
+                phi, p = math.copysign(math.inf, phi), math.nan
             if not (-1.5 < phi < 1.5) or p != p:
+                last = roll[k]
                 self.k = k + 1
-                roll[k + 1] = phi
-                rate[k + 1] = p
+                roll[k + 1] = phi if math.isfinite(phi) else math.nan
+                rate[k + 1] = p if math.isfinite(p) else math.nan
                 finp[k + 1] = a1p
                 fins_[k + 1] = a1s
+                self.meas[k + 1] = self._measure(k + 1)
                 raise PlantError(
                     f"roll left the model's range at t = {(k + 1) * dt:.2f} s "
-                    f"(roll {math.degrees(phi):.1f} deg): the vessel would capsize or the model is invalid"
+                    f"(roll {math.degrees(last):.1f} deg one step before; beyond ±86 deg or the GZ table's last heel): "
+                    "the vessel would capsize or the model is no longer valid"
                 )
             k += 1
             roll[k] = phi
@@ -390,7 +396,7 @@ class Plant:
         phi += self._m_nr[k]
         p += self._m_nq[k]
         q_r = sens.quantisation_roll_rad
-        if q_r > 0.0:
+        if q_r > 0.0 and math.isfinite(phi):
             phi = round(phi / q_r) * q_r
         roll_age = rate_age = age
         roll_valid = rate_valid = True
@@ -401,7 +407,7 @@ class Plant:
                 roll_age = self._stale_age("roll", k, age)
         if sens.provides_rate:
             q_p = sens.quantisation_rate_rad_s
-            if q_p > 0.0:
+            if q_p > 0.0 and math.isfinite(p):
                 p = round(p / q_p) * q_p
             if anyf["roll_rate"]:
                 p, rate_valid, fresh = self._faulted("roll_rate", k, p, True)

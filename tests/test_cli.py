@@ -144,3 +144,22 @@ def test_help_explains_each_command():
     assert "SCENARIO.toml" in r.stdout and "--json" in r.stdout and "significant" in r.stdout
     r = subprocess.run([sys.executable, "-m", "hil.cli", "--help"], capture_output=True, text=True, cwd=ROOT)
     assert "CAUTION" in r.stdout and "does not replace the ship's certified" in r.stdout
+
+
+def test_a_capsizing_run_stops_early_keeps_its_records_and_exits_3(tmp_path, capsys):
+    # A steady heeling arm of 1.2 m exceeds the demo GZ curve's maximum (0.88 m at 35°), so
+    # the vessel has no equilibrium and capsizes (static stability: heeling arm > max GZ).
+    text = DEMO.read_text().replace('"../vessels/', f'"{ROOT}/configs/vessels/').replace('"../controller/', f'"{ROOT}/configs/controller/')
+    text += '\n[[external_moments]]\nkind = "step"\nheeling_arm_m = 1.2\nstart_s = 100.0\n'
+    sc = tmp_path / "capsize.toml"
+    sc.write_text(text)
+    out = tmp_path / "run"
+    code = main(["sim", str(sc), "--json", "--no-plots", "--out", str(out)])
+    cap = capsys.readouterr()
+    assert code == 3
+    res = json.loads(cap.out)
+    assert "roll left the model's range" in res["stopped_early"]
+    assert "run stopped early" in cap.err
+    data = np.loadtxt(out / "steps.csv", delimiter=",", skiprows=1)
+    assert 100.0 < data[-1, 0] < 1200.0  # recorded up to the capsize
+    assert json.loads((out / "meta.json").read_text())["stopped_early"]
