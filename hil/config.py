@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from plant.actuator import ActuatorParams
-from plant.constants import DEG, KNOT, TONNE
+from plant.constants import G, KNOT, TONNE
 from plant.excitation import MOMENT_METHODS, SEA_KINDS, SeaSpec, WaveMomentSpec
 from plant.fins import FinParams, whicker_fehlner_lift_slope
 from plant.sensors import (
@@ -33,7 +33,7 @@ from plant.sensors import (
 from plant.simulation import ExternalMoment, PlantSetup
 from plant.vessel import GZTable, VesselParams, damping_from_ratio, imo_roll_period_s, inertia_from_period
 
-from .configio import NO_VALUE, ConfigError, Problem, Problems, Reader, read_toml
+from .configio import NO_VALUE, ConfigError, Problem, Problems, Reader, deg, kilo, kn, pct, read_toml
 
 __all__ = [
     "Vessel",
@@ -45,24 +45,8 @@ __all__ = [
     "ConfigError",
 ]
 
-G = 9.80665
 DEFAULT_SEAWATER_DENSITY = 1026.0  # kg/m³ at 15 °C, 35 g/kg — ITTC 7.5-02-01-03 (see plant.water)
 
-
-def _deg(x: float) -> float:
-    return x * DEG
-
-
-def _kn(x: float) -> float:
-    return x * KNOT
-
-
-def _kilo(x: float) -> float:
-    return x * 1000.0
-
-
-def _pct(x: float) -> float:
-    return x / 100.0
 
 
 @dataclass(frozen=True)
@@ -89,6 +73,7 @@ class Scenario:
     heading_rad: float
     warmup_s: float
     controller_file: Path | None
+    controller: object | None  # controller.ControllerParams when the scenario names one
     source: Path
     files: tuple[Path, ...]  # every file this scenario depends on (for hashing)
     warnings: tuple[Problem, ...] = field(default=())
@@ -149,7 +134,7 @@ def _overlay(path, problems, base: dict, override: dict, keys, base_prefix: str,
 
 def _read_fin(r: Reader, side: int) -> FinParams:
     area = r.number("area_m2", unit="m2", lo=0.0, lo_open=True, hi=100.0, warn_hi=40.0, warn_why="very large for a stabiliser fin")
-    sweep = r.number("sweep_deg", unit="deg", lo=0.0, hi=60.0, default=0.0, si=_deg)
+    sweep = r.number("sweep_deg", unit="deg", lo=0.0, hi=60.0, default=0.0, si=deg)
     which = None
     if r.table is not None:
         has_ar = "aspect_ratio" in r.table
@@ -172,9 +157,9 @@ def _read_fin(r: Reader, side: int) -> FinParams:
     else:
         r._used.add("lift_slope_per_rad")
         cla = whicker_fehlner_lift_slope(ar, sweep) if (ar == ar and sweep == sweep) else math.nan
-    stall = r.number("stall_angle_deg", unit="deg", lo=0.0, lo_open=True, hi=90.0, hi_open=True, si=_deg)
-    drop = r.number("stall_drop_deg", unit="deg", lo=0.0, lo_open=True, hi=30.0, default=4.0, si=_deg)
-    post = r.number("post_stall_lift_pct", unit="%", lo=0.0, hi=100.0, default=60.0, si=_pct)
+    stall = r.number("stall_angle_deg", unit="deg", lo=0.0, lo_open=True, hi=90.0, hi_open=True, si=deg)
+    drop = r.number("stall_drop_deg", unit="deg", lo=0.0, lo_open=True, hi=30.0, default=4.0, si=deg)
+    post = r.number("post_stall_lift_pct", unit="%", lo=0.0, hi=100.0, default=60.0, si=pct)
     cd0 = r.number("profile_drag_coefficient", lo=0.0, hi=0.2, default=0.008)
     e = r.number("oswald_efficiency", lo=0.0, lo_open=True, hi=1.0, default=0.9)
     rho = r.number("water_density_kg_m3", unit="kg/m3", lo=990.0, hi=1050.0, default=DEFAULT_SEAWATER_DENSITY)
@@ -182,12 +167,12 @@ def _read_fin(r: Reader, side: int) -> FinParams:
 
 
 def _read_actuator(r: Reader) -> ActuatorParams:
-    lim = r.number("angle_limit_deg", unit="deg", lo=0.0, lo_open=True, hi=90.0, hi_open=True, si=_deg,
+    lim = r.number("angle_limit_deg", unit="deg", lo=0.0, lo_open=True, hi=90.0, hi_open=True, si=deg,
                    warn_hi=40.0, warn_why="beyond usual mechanical fin limits")
-    rate = r.number("rate_limit_deg_s", unit="deg/s", lo=0.0, lo_open=True, hi=200.0, si=_deg)
+    rate = r.number("rate_limit_deg_s", unit="deg/s", lo=0.0, lo_open=True, hi=200.0, si=deg)
     tau = r.number("time_constant_s", unit="s", lo=0.0, hi=5.0, default=0.0)
     delay = r.number("delay_s", unit="s", lo=0.0, hi=2.0, default=0.0)
-    db = r.number("deadband_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=_deg)
+    db = r.number("deadband_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=deg)
     return ActuatorParams(lim, rate, tau, delay, db)
 
 
@@ -207,7 +192,7 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     which = vr.one_of(["roll_gyradius_m", "natural_roll_period_s"])
     if which == "roll_gyradius_m":
         k = vr.number("roll_gyradius_m", unit="m", lo=0.0, lo_open=True, hi=100.0)
-        add = vr.number("added_inertia_pct", unit="%", lo=0.0, hi=200.0, default=20.0, si=_pct)
+        add = vr.number("added_inertia_pct", unit="%", lo=0.0, hi=200.0, default=20.0, si=pct)
         if k == k and beam == beam and not (0.25 * beam <= k <= 0.55 * beam):
             vr.warn("roll_gyradius_m", k, "m", f"outside the usual 0.25..0.55 × beam ({0.25 * beam:.1f}..{0.55 * beam:.1f} m)")
         inertia = disp * k * k * (1.0 + add)
@@ -221,7 +206,7 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     gz = None
     gzr = vr.table_reader("gz", required=False)
     if gzr is not None:
-        heel = gzr.numbers("heel_deg", unit="deg", lo=0.0, hi=90.0, hi_open=True, min_len=2, increasing=True, si=_deg)
+        heel = gzr.numbers("heel_deg", unit="deg", lo=0.0, hi=90.0, hi_open=True, min_len=2, increasing=True, si=deg)
         gzv = gzr.numbers("gz_m", unit="m", lo=-5.0, hi=20.0, min_len=2)
         gzr.done()
         if heel and gzv:
@@ -240,12 +225,12 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     which_d = dr.one_of(["linear_ratio_pct", "b1_kN_m_s"])
     restoring = disp * G * (gz.initial_slope_m if gz is not None else gm)
     if which_d == "linear_ratio_pct":
-        ratio = dr.number("linear_ratio_pct", unit="%", lo=0.0, hi=100.0, hi_open=True, si=_pct,
+        ratio = dr.number("linear_ratio_pct", unit="%", lo=0.0, hi=100.0, hi_open=True, si=pct,
                           warn_hi=20.0, warn_why="passive roll damping is usually a few percent of critical")
         b1 = damping_from_ratio(ratio, restoring, inertia) if all(x == x for x in (ratio, restoring, inertia)) else math.nan
     elif which_d == "b1_kN_m_s":
-        b1 = dr.number("b1_kN_m_s", unit="kN.m.s", lo=0.0, si=_kilo)
-    b2 = dr.number("b2_kN_m_s2", unit="kN.m.s2", lo=0.0, default=0.0, si=_kilo)
+        b1 = dr.number("b1_kN_m_s", unit="kN.m.s", lo=0.0, si=kilo)
+    b2 = dr.number("b2_kN_m_s2", unit="kN.m.s2", lo=0.0, default=0.0, si=kilo)
     dr.done()
     # wave moment
     wr = vr.table_reader("wave_moment")
@@ -385,12 +370,12 @@ def _read_sensors(r: Reader | None) -> SensorSuite:
         m = MotionSensorParams(
             sample_rate_hz=mr.number("sample_rate_hz", unit="Hz", lo=1.0, hi=2000.0, default=100.0),
             latency_s=mr.number("latency_s", unit="s", lo=0.0, hi=2.0, default=0.005),
-            noise_roll_rad=mr.number("roll_noise_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=_deg),
-            noise_rate_rad_s=mr.number("rate_noise_deg_s", unit="deg/s", lo=0.0, hi=10.0, default=0.0, si=_deg),
-            bias_roll_rad=mr.number("roll_bias_deg", unit="deg", lo=-10.0, hi=10.0, default=0.0, si=_deg),
-            bias_rate_rad_s=mr.number("rate_bias_deg_s", unit="deg/s", lo=-10.0, hi=10.0, default=0.0, si=_deg),
-            quantisation_roll_rad=mr.number("roll_resolution_deg", unit="deg", lo=0.0, hi=1.0, default=0.0, si=_deg),
-            quantisation_rate_rad_s=mr.number("rate_resolution_deg_s", unit="deg/s", lo=0.0, hi=1.0, default=0.0, si=_deg),
+            noise_roll_rad=mr.number("roll_noise_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=deg),
+            noise_rate_rad_s=mr.number("rate_noise_deg_s", unit="deg/s", lo=0.0, hi=10.0, default=0.0, si=deg),
+            bias_roll_rad=mr.number("roll_bias_deg", unit="deg", lo=-10.0, hi=10.0, default=0.0, si=deg),
+            bias_rate_rad_s=mr.number("rate_bias_deg_s", unit="deg/s", lo=-10.0, hi=10.0, default=0.0, si=deg),
+            quantisation_roll_rad=mr.number("roll_resolution_deg", unit="deg", lo=0.0, hi=1.0, default=0.0, si=deg),
+            quantisation_rate_rad_s=mr.number("rate_resolution_deg_s", unit="deg/s", lo=0.0, hi=1.0, default=0.0, si=deg),
             provides_rate=mr.boolean("provides_rate", default=True),
         )
         mr.done()
@@ -400,8 +385,8 @@ def _read_sensors(r: Reader | None) -> SensorSuite:
         s = SpeedLogParams(
             sample_rate_hz=sr.number("sample_rate_hz", unit="Hz", lo=0.01, hi=100.0, default=1.0),
             latency_s=sr.number("latency_s", unit="s", lo=0.0, hi=10.0, default=0.0),
-            noise_ms=sr.number("noise_kn", unit="kn", lo=0.0, hi=5.0, default=0.0, si=_kn),
-            bias_ms=sr.number("bias_kn", unit="kn", lo=-5.0, hi=5.0, default=0.0, si=_kn),
+            noise_ms=sr.number("noise_kn", unit="kn", lo=0.0, hi=5.0, default=0.0, si=kn),
+            bias_ms=sr.number("bias_kn", unit="kn", lo=-5.0, hi=5.0, default=0.0, si=kn),
             dropouts_per_hour=sr.number("dropouts_per_hour", unit="1/h", lo=0.0, hi=3600.0, default=0.0),
             dropout_duration_s=sr.number("dropout_duration_s", unit="s", lo=0.0, hi=3600.0, default=5.0),
         )
@@ -410,8 +395,8 @@ def _read_sensors(r: Reader | None) -> SensorSuite:
     f = FinFeedbackParams()
     if fr is not None:
         f = FinFeedbackParams(
-            noise_rad=fr.number("noise_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=_deg),
-            quantisation_rad=fr.number("resolution_deg", unit="deg", lo=0.0, hi=2.0, default=0.0, si=_deg),
+            noise_rad=fr.number("noise_deg", unit="deg", lo=0.0, hi=5.0, default=0.0, si=deg),
+            quantisation_rad=fr.number("resolution_deg", unit="deg", lo=0.0, hi=2.0, default=0.0, si=deg),
         )
         fr.done()
     r.done()
@@ -419,11 +404,11 @@ def _read_sensors(r: Reader | None) -> SensorSuite:
 
 
 _FAULT_VALUE_KEY = {
-    "roll": ("value_deg", "deg", _deg),
-    "roll_rate": ("value_deg_s", "deg/s", _deg),
-    "speed": ("value_kn", "kn", _kn),
-    "fin_port_feedback": ("value_deg", "deg", _deg),
-    "fin_stbd_feedback": ("value_deg", "deg", _deg),
+    "roll": ("value_deg", "deg", deg),
+    "roll_rate": ("value_deg_s", "deg/s", deg),
+    "speed": ("value_kn", "kn", kn),
+    "fin_port_feedback": ("value_deg", "deg", deg),
+    "fin_stbd_feedback": ("value_deg", "deg", deg),
 }
 
 
@@ -457,7 +442,7 @@ def _read_external(top: Reader, disp_kg: float) -> tuple[ExternalMoment, ...]:
         which = er.one_of(["moment_kN_m", "heeling_arm_m", "mass_t"])
         m = math.nan
         if which == "moment_kN_m":
-            m = er.number("moment_kN_m", unit="kN.m", lo=-1e7, hi=1e7, si=_kilo)
+            m = er.number("moment_kN_m", unit="kN.m", lo=-1e7, hi=1e7, si=kilo)
         elif which == "heeling_arm_m":
             arm = er.number("heeling_arm_m", unit="m", lo=-10.0, hi=10.0)
             m = disp_kg * G * arm
@@ -492,17 +477,17 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
     seed = sr.integer("seed", lo=0, hi=2**63 - 1)
     rate = sr.number("control_rate_hz", unit="Hz", lo=1.0, hi=1000.0, default=50.0)
     substeps = sr.integer("substeps", lo=1, hi=100, default=1)
-    heading = sr.number("heading_deg", unit="deg", lo=0.0, hi=360.0, hi_open=True, si=_deg)
+    heading = sr.number("heading_deg", unit="deg", lo=0.0, hi=360.0, hi_open=True, si=deg)
     fins_off = sr.string("fins_when_off", choices=("centred", "retracted"), default="centred")
     which_speed = sr.one_of(["speed_kn", "speed_profile"])
     times: tuple[float, ...] = (0.0,)
     speeds: tuple[float, ...] = (math.nan,)
     if which_speed == "speed_kn":
-        speeds = (sr.number("speed_kn", unit="kn", lo=0.0, hi=60.0, si=_kn),)
+        speeds = (sr.number("speed_kn", unit="kn", lo=0.0, hi=60.0, si=kn),)
     elif which_speed == "speed_profile":
         pr = sr.table_reader("speed_profile")
         times = pr.numbers("time_s", unit="s", lo=0.0, increasing=True)
-        speeds = pr.numbers("speed_kn", unit="kn", lo=0.0, hi=60.0, si=_kn)
+        speeds = pr.numbers("speed_kn", unit="kn", lo=0.0, hi=60.0, si=kn)
         if times and speeds and len(times) != len(speeds):
             pr.error("speed_kn", [round(s / KNOT, 3) for s in speeds], "kn", f"needs as many values as time_s ({len(times)})")
         pr.done()
@@ -525,6 +510,19 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
                 problems.add(Problem(str(vessel_path), "", NO_VALUE, "", "not a vessel file (no [vessel] table)"))
             else:
                 vessel = read_vessel(vessel_path, vtable, problems)
+    controller = None
+    if controller_path is not None:
+        ctable = read_toml(controller_path, problems)
+        if ctable is not None:
+            from .controller_config import CONTROLLER_TOP_KEY, read_controller_file
+
+            if CONTROLLER_TOP_KEY not in ctable:
+                problems.add(Problem(str(controller_path), "", NO_VALUE, "", "not a controller file (no [controller] table)"))
+            else:
+                controller = read_controller_file(controller_path, ctable, problems)
+        if controller is not None and rate == rate and abs(controller.dt * rate - 1.0) > 1e-9:
+            sr.error("control_rate_hz", rate, "Hz",
+                     f"must equal the controller's sample_rate_hz ({1.0 / controller.dt:g} Hz in {controller_path.name})")
     disp = vessel.params.displacement_kg if vessel is not None else math.nan
     external = _read_external(top, disp)
     faults = _read_faults(top, duration)
@@ -569,7 +567,7 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
         faults=faults,
         fins_when_off=fins_off,
     )
-    return Scenario(name, setup, vessel, sea, heading, warmup, controller_path, Path(path), tuple(files),
+    return Scenario(name, setup, vessel, sea, heading, warmup, controller_path, controller, Path(path), tuple(files),
                     tuple(problems.warnings))
 
 

@@ -136,6 +136,30 @@ def read_toml(path: str | Path, problems: Problems) -> dict | None:
     return None
 
 
+# Converters from the trade units of config keys to SI (pass as ``si=`` to the accessors).
+_KNOT = 1852.0 / 3600.0
+
+
+def deg(x: float) -> float:
+    """degrees → rad"""
+    return math.radians(x)
+
+
+def kn(x: float) -> float:
+    """knots → m/s"""
+    return x * _KNOT
+
+
+def kilo(x: float) -> float:
+    """kN, kN·m, kN·m·s ... → N, N·m, N·m·s ..."""
+    return x * 1000.0
+
+
+def pct(x: float) -> float:
+    """percent → fraction"""
+    return x / 100.0
+
+
 def _range_text(lo, hi, lo_open, hi_open, unit) -> str:
     u = f" {unit}" if unit else ""
     if lo is not None and hi is not None:

@@ -211,3 +211,15 @@ def test_heading_outside_the_rao_table_is_a_config_error(tmp_path):
     bad = text.replace("heading_deg = 90.0", "heading_deg = 60.0")
     with pytest.raises(ConfigError, match=r"scenario\.heading_deg = 60\.0 deg: not covered by the vessel's RAO table"):
         load_scenario(_write(tmp_path, "bad.toml", bad))
+
+
+def test_scenario_checks_the_controller_it_names_and_its_sample_rate(tmp_path):
+    sc = load_scenario(ROOT / "configs/scenarios/beam_sea_service_speed.toml")
+    assert sc.controller is not None and sc.controller.dt == pytest.approx(0.02)
+    with pytest.raises(ConfigError, match=r"scenario\.control_rate_hz = 20\.0 Hz: must equal the controller's sample_rate_hz \(50 Hz"):
+        load_scenario(_write(tmp_path, "r.toml", _scenario_text(**{"control_rate_hz = 50.0": "control_rate_hz = 20.0"})))
+    ctl = (ROOT / "configs/controller/demo_pax_135.toml").read_text().replace("rate_deg_s = 22", "rate_deg_s = 0")
+    c = _write(tmp_path, "c.toml", ctl)
+    text = _scenario_text().replace(f'"{ROOT}/configs/controller/demo_pax_135.toml"', f'"{c}"')
+    with pytest.raises(ConfigError, match=r"c\.toml: controller\.limits\.rate_deg_s = 0"):
+        load_scenario(_write(tmp_path, "s.toml", text))
