@@ -38,7 +38,7 @@ from .sensors import (
     motion_schedule,
     speed_log_measurements,
 )
-from .vessel import VesselParams
+from .vessel import VesselParams, gz_function
 
 
 class PlantError(RuntimeError):
@@ -221,7 +221,7 @@ class Plant:
         b2 = v.b2_n_m_s2
         dg = v.displacement_kg * G
         gm = v.gm_m
-        gz = v.gz.gz if v.gz is not None else None
+        gz = gz_function(v.gz) if v.gz is not None else None
         sin = math.sin
         atan2 = math.atan2
         fp, fs = s.fin_port, s.fin_stbd
@@ -234,11 +234,8 @@ class Plant:
         # linear-range fast path parameters
         kp_, sp_ = fp.lift_slope_per_rad, fp.stall_angle_rad
         ks_, ss_ = fs.lift_slope_per_rad, fs.stall_angle_rad
-        wave = self.excitation.moment_n_m.tolist()
-        ext = self.ext_half.tolist()
         spd = self.speed_half.tolist()
-        mom = [a + b for a, b in zip(wave, ext)]
-        del wave, ext
+        mom = (self.excitation.moment_n_m + self.ext_half).tolist()
         ap_ = s.actuator_port
         as_ = s.actuator_stbd
         dt = s.control_dt_s
@@ -255,18 +252,20 @@ class Plant:
         stuck_s = self._codes["fin_stbd_actuator"][0].tolist()
         roll, rate, finp, fins_ = self.roll, self.rate, self.fin_port, self.fin_stbd
         dem_p, dem_s = self.demand_port, self.demand_stbd
-        lift_p = lambda a: kp_ * a if -sp_ <= a <= sp_ else lift_coefficient(a, fp)  # noqa: E731
-        lift_s = lambda a: ks_ * a if -ss_ <= a <= ss_ else lift_coefficient(a, fs)  # noqa: E731
         n_total = self.n_steps
 
         def accel(phi: float, p: float, a_p: float, a_s: float, m: float, u: float) -> float:
+            # roll acceleration from the roll equation; fin lift inlined (linear range fast path,
+            # plant.fins.lift_coefficient beyond stall)
             if gz is None:
                 rest = dg * gm * sin(phi)
             else:
                 rest = dg * gz(phi)
-            uu = u * u
-            mf = mcoef_p * uu * lift_p(a_p + atan2(p * yp, u)) + mcoef_s * uu * lift_s(a_s + atan2(p * ys, u))
-            return (m + mf - b1 * p - b2 * p * abs(p) - rest) * inv_i
+            e = a_p + atan2(p * yp, u)
+            cl_p = kp_ * e if -sp_ <= e <= sp_ else lift_coefficient(e, fp)
+            e = a_s + atan2(p * ys, u)
+            cl_s = ks_ * e if -ss_ <= e <= ss_ else lift_coefficient(e, fs)
+            return (m + u * u * (mcoef_p * cl_p + mcoef_s * cl_s) - b1 * p - b2 * p * abs(p) - rest) * inv_i
 
         def step(demand_port: float, demand_stbd: float) -> Measurements:
             k = self.k
@@ -478,8 +477,11 @@ class Plant:
             mf += -fin.y_m * lift
             drag += d
             per_fin[name] = (a_eff, lift)
-        if v.gz is not None:
-            rest = np.array([v.restoring_moment(x) for x in phi])
+        if v.gz is not None:  # the same linear interpolation as GZTable.gz, mirrored for φ < 0
+            a = np.abs(phi)
+            lever = np.interp(a, v.gz.heel_rad, v.gz.gz_m)
+            lever[~(a <= v.gz.heel_rad[-1])] = np.nan  # beyond the table (a capsize's last row)
+            rest = v.displacement_kg * G * np.sign(phi) * lever
         else:
             rest = v.displacement_kg * G * v.gm_m * np.sin(phi)
         acc = (mw + me + mf - v.b1_n_m_s * p - v.b2_n_m_s2 * p * np.abs(p) - rest) / v.inertia_kg_m2

@@ -63,6 +63,36 @@ class GZTable:
         return -v if phi < 0.0 else v
 
 
+def gz_function(table: GZTable):
+    """A fast GZ(φ) for stepping loops: same values as :meth:`GZTable.gz`, no allocation.
+
+    Remembers the last table segment (roll changes little between calls) and falls back to a
+    bisection when φ has left it; raises ``ValueError`` beyond the table like the method.
+    """
+    xs = list(table.heel_rad)
+    ys = list(table.gz_m)
+    slopes = [(ys[i + 1] - ys[i]) / (xs[i + 1] - xs[i]) for i in range(len(xs) - 1)]
+    last_x = xs[-1]
+    n_seg = len(slopes)
+    seg = [0]
+    bisect_right = bisect.bisect_right
+
+    def gz(phi: float) -> float:
+        a = -phi if phi < 0.0 else phi
+        i = seg[0]
+        if not (xs[i] <= a <= xs[i + 1]):
+            if not a <= last_x:
+                raise ValueError(f"heel {math.degrees(phi):.1f} deg is beyond the GZ table")
+            i = bisect_right(xs, a) - 1
+            if i >= n_seg:
+                i = n_seg - 1
+            seg[0] = i
+        v = ys[i] + slopes[i] * (a - xs[i])
+        return -v if phi < 0.0 else v
+
+    return gz
+
+
 @dataclass(frozen=True)
 class VesselParams:
     """Roll-relevant properties of a vessel (SI units).

@@ -129,3 +129,21 @@ def test_steady_heel_from_external_moment_equals_moment_over_restoring():
     rec = run(plant(s))
     assert rec["roll_rad"][-1] == pytest.approx(math.asin(0.05 / GM), rel=1e-4)
     assert rec["roll_rad"][-1] > 0  # positive moment heels to starboard (φ > 0)
+
+
+def test_fast_gz_function_equals_the_table_interpolation_everywhere():
+    # The stepping loop's cached-segment GZ must give exactly the table's linear interpolation
+    # (numpy.interp as the reference), including sign mirroring and the error beyond the table.
+    from plant.vessel import gz_function
+
+    heel = tuple(math.radians(x) for x in (0, 5, 10, 20, 35, 50, 70))
+    gz = GZTable(heel, (0.0, 0.15, 0.31, 0.60, 0.88, 0.72, 0.1))
+    f = gz_function(gz)
+    rng = np.random.default_rng(3)
+    phis = np.concatenate([rng.uniform(-1.22, 1.22, 5000), np.linspace(-1.2, 1.2, 2001), np.array(heel), -np.array(heel)])
+    for phi in phis:  # random order exercises the segment cache and the bisection fallback
+        ref = math.copysign(float(np.interp(abs(phi), heel, gz.gz_m)), phi)
+        assert f(phi) == pytest.approx(ref, abs=1e-12)
+        assert gz.gz(phi) == pytest.approx(ref, abs=1e-12)
+    with pytest.raises(ValueError, match="beyond the GZ table"):
+        f(math.radians(71.0))
