@@ -155,7 +155,7 @@ def _read_fin(r: Reader, side: int) -> FinParams:
         cla = r.number("lift_slope_per_rad", unit="1/rad", lo=0.0, lo_open=True, hi=2.0 * math.pi,
                        warn_hi=4.5, warn_why="above typical low-aspect-ratio fins")
     else:
-        r._used.add("lift_slope_per_rad")
+        r.known("lift_slope_per_rad")
         cla = whicker_fehlner_lift_slope(ar, sweep) if (ar == ar and sweep == sweep) else math.nan
     stall = r.number("stall_angle_deg", unit="deg", lo=0.0, lo_open=True, hi=90.0, hi_open=True, si=deg)
     drop = r.number("stall_drop_deg", unit="deg", lo=0.0, lo_open=True, hi=30.0, default=4.0, si=deg)
@@ -199,7 +199,7 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     elif which == "natural_roll_period_s":
         t0 = vr.number("natural_roll_period_s", unit="s", lo=1.0, hi=60.0)
         inertia = inertia_from_period(disp, gm, t0) if gm == gm and t0 == t0 else math.nan
-        vr._used.add("added_inertia_pct")
+        vr.known("added_inertia_pct")
         if vr.has("added_inertia_pct"):
             vr.error("added_inertia_pct", vr.table["added_inertia_pct"], "%", "only used with roll_gyradius_m (a natural period already includes added inertia)")
     # GZ table

@@ -219,6 +219,11 @@ class Reader:
         """Record a warning at ``key`` of this table."""
         self.problems.add(Problem(self.file, self.path(key), value, unit, message, "warning"))
 
+    def known(self, *keys: str) -> None:
+        """Mark ``keys`` as belonging to this table without reading them (e.g. an optional key
+        whose absence selects a default computed elsewhere, or a key of the other alternative)."""
+        self._used.update(keys)
+
     def has(self, key: str) -> bool:
         return self.table is not None and key in self.table
 
@@ -433,8 +438,7 @@ class Reader:
             self.problems.add(
                 Problem(self.file, where, _MISSING, "", f"give only one of: {', '.join(present)}")
             )
-            for k in present:
-                self._used.add(k)
+            self.known(*present)
         return None
 
     def done(self) -> None:

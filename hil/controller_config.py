@@ -149,7 +149,7 @@ def read_controller(r: Reader) -> ControllerParams | None:
             sr.warn("reference_speed_kn", sr.table["reference_speed_kn"], "kn",
                     "outside [min_speed_kn, max_speed_kn]: the gains are never used as written")
         for k in table_keys:
-            sr._used.add(k)
+            sr.known(k)
             if sr.has(k):
                 sr.error(k, sr.table[k], "", 'only used with rule = "table"')
     elif rule == "table":
@@ -166,7 +166,7 @@ def read_controller(r: Reader) -> ControllerParams | None:
                         f"factor at reference_speed_kn is {probe:.3g}, not 1: the gains are not "
                         "the gains at the reference speed")
         for k in rule_keys:
-            sr._used.add(k)
+            sr.known(k)
             if sr.has(k):
                 sr.error(k, sr.table[k], "kn", 'only used with rule = "speed_squared"')
     speed_tau = sr.number("speed_filter_s", unit="s", lo=0.05, hi=120.0)
