@@ -69,8 +69,44 @@ def _clean(x):
 # ----------------------------------------------------------------------------------------------
 
 
+def _sim_controller(args, scenario):
+    """The controller parameters for a closed-loop run: --controller FILE, else the scenario's."""
+    if args.controller:
+        from .controller_config import load_controller
+
+        return load_controller(args.controller), Path(args.controller)
+    if scenario.controller is None:
+        raise UsageError(
+            f"{args.scenario}: the scenario names no controller file (key controller_file); "
+            "give one with --controller CONTROLLER.toml for --stabiliser on/both"
+        )
+    return scenario.controller, scenario.controller_file
+
+
+def run_metrics(result, scenario) -> dict:
+    """Roll, fin and comfort metrics of one run (trade units)."""
+    from .metrics import fin_metrics
+
+    m = dict(result.metrics)
+    m.update(fin_metrics(result.records, scenario.warmup_s))
+    m.update(_comfort(result.records, scenario))
+    return m
+
+
+def _comfort(records, scenario) -> dict:
+    try:
+        from .comfort import comfort_metrics
+    except ImportError:  # pragma: no cover - comfort module not present
+        return {}
+    spec = getattr(scenario, "comfort", None)
+    if spec is None:
+        return {}
+    return comfort_metrics(records, spec, scenario.warmup_s)
+
+
 def cmd_sim(args) -> int:
     from .config import file_sha256, load_scenario
+    from .metrics import roll_reduction_pct
     from .runfolder import base_meta, new_run_folder, utc_now, write_json, write_steps_csv
     from .simulate import run_passive
 
@@ -78,67 +114,218 @@ def cmd_sim(args) -> int:
     for w in scenario.warnings:
         print(str(w), file=sys.stderr)
     seed = scenario.setup.seed if args.seed is None else args.seed
+    modes = {"off": ["off"], "on": ["on"], "both": ["off", "on"]}[args.stabiliser]
+    params = controller_file = None
+    if "on" in modes:
+        from .closed_loop import check_rates
+
+        params, controller_file = _sim_controller(args, scenario)
+        try:
+            check_rates(scenario, params)
+        except ValueError as exc:
+            raise UsageError(str(exc)) from None
+    if args.ideal and "off" not in modes:
+        modes = ["off", *modes]  # the bound needs the passive record (same sea); not written unless asked
     start = utc_now()
     folder = new_run_folder(Path(args.runs_dir), Path(args.scenario).stem, Path(args.out) if args.out else None, start)
-    result = run_passive(scenario, seed)
+    results, metrics = {}, {}
+    for mode in modes:
+        if mode == "off":
+            results[mode] = run_passive(scenario, seed)
+        else:
+            from .closed_loop import run_closed_loop
+
+            results[mode] = run_closed_loop(scenario, params, seed)
+        metrics[mode] = run_metrics(results[mode], scenario)
+    shown = [m for m in ("off", "on") if m in modes and (m != "off" or args.stabiliser != "on")]
+    files = list(scenario.files) + ([controller_file] if controller_file and Path(controller_file) not in scenario.files else [])
+    headers = {}
+    for mode in shown:
+        name = "steps.csv" if len(shown) == 1 else f"steps_{mode}.csv"
+        headers[name] = write_steps_csv(folder / name, results[mode].records)
     v = scenario.vessel.params
-    metrics = dict(result.metrics)
-    metrics.update(
+    common = dict(
         natural_period_s=v.natural_period_s,
-        duration_s=float(result.records["t_s"][-1]),
+        duration_s=float(results[modes[-1]].records["t_s"][-1]),
         seed=seed,
-        stabiliser="off",
+        stabiliser=args.stabiliser,
     )
-    header = write_steps_csv(folder / "steps.csv", result.records)
+    out_metrics = dict(metrics[shown[-1]])
+    out_metrics.update(common)
+    if "off" in metrics and "on" in metrics:
+        out_metrics["roll_reduction_pct"] = roll_reduction_pct(metrics["off"], metrics["on"])
+    elif "on" in shown:
+        out_metrics["roll_reduction_pct"] = None  # needs the passive run: use --stabiliser both
+    if args.ideal:
+        from .ideal import efficiency, ideal_bound
+
+        bound = ideal_bound(scenario, seed=seed, records=results["off"].records)
+        out_metrics["ideal_roll_reduction_pct"] = bound.ideal_roll_reduction_pct
+        if out_metrics.get("roll_reduction_pct") is not None:
+            out_metrics["efficiency"] = efficiency(out_metrics["roll_reduction_pct"], bound)
+        out_metrics["ideal_bound"] = bound.summary()
+    if len(shown) == 2:
+        out_metrics["off"] = metrics["off"]
+        out_metrics["on"] = metrics["on"]
     meta = base_meta(start)
     meta.update(
         scenario=scenario.name,
         scenario_file=str(Path(args.scenario)),
+        controller_file=str(controller_file) if controller_file else None,
         seed=seed,
-        config_sha256=file_sha256(scenario.files),
-        files={str(p): file_sha256([p]) for p in scenario.files},
-        stabiliser="off",
+        config_sha256=file_sha256(files),
+        files={str(p): file_sha256([p]) for p in files},
+        stabiliser=args.stabiliser,
         control_rate_hz=1.0 / scenario.setup.control_dt_s,
         substeps=scenario.setup.substeps,
         warmup_s=scenario.warmup_s,
         fins_when_off=scenario.setup.fins_when_off,
         warnings=[str(w) for w in scenario.warnings],
-        excitation_notes=list(result.excitation_notes),
-        stopped_early=result.error,
-        csv_columns=header,
+        excitation_notes=list(results[modes[-1]].excitation_notes),
+        stopped_early={m: results[m].error for m in modes if results[m].error} or None,
+        csv_columns=headers,
     )
     write_json(folder / "meta.json", _clean(meta))
-    write_json(folder / "metrics.json", _clean(metrics))
+    write_json(folder / "metrics.json", _clean(out_metrics))
     plots = []
     if not args.no_plots:
-        from .plots import plot_passive
+        from .plots import plot_closed_loop, plot_passive
 
-        plots = plot_passive(folder, result.records, scenario)
-    out = {"run_folder": str(folder), **_clean(metrics), "plots": [str(p) for p in plots]}
-    if result.error:
-        out["stopped_early"] = result.error
-    text = _sim_text(scenario, folder, metrics, result.error)
-    _emit(args, out, text)
-    if result.error:
-        print(f"finloop sim: run stopped early: {result.error} (records up to then are in {folder})", file=sys.stderr)
+        if shown == ["off"]:
+            plots = plot_passive(folder, results["off"].records, scenario)
+        else:
+            plots = plot_closed_loop(folder, {m: results[m].records for m in shown}, scenario, params)
+    out = {"run_folder": str(folder), **_clean(out_metrics), "plots": [str(p) for p in plots]}
+    errors = {m: results[m].error for m in modes if results[m].error}
+    if errors:
+        out["stopped_early"] = errors
+    _emit(args, out, _sim_text(scenario, folder, out_metrics, metrics, shown, errors))
+    if errors:
+        for m, e in errors.items():
+            print(f"finloop sim: run with stabiliser {m} stopped early: {e} (records up to then are in {folder})",
+                  file=sys.stderr)
         return EXIT_RUN_STOPPED
     return EXIT_OK
 
 
-def _sim_text(scenario, folder, m, error) -> str:
-    lines = [
-        f"{scenario.name} — stabiliser off, seed {m['seed']}",
-        f"  natural roll period   {m['natural_period_s']:8.2f} s",
-        f"  duration              {m['duration_s']:8.1f} s  (statistics from {m['stats_from_s']:.0f} s)",
-        f"  roll RMS              {m['roll_rms_deg']:8.2f} deg",
-        f"  roll mean             {m['roll_mean_deg']:8.2f} deg",
-        f"  significant amplitude {m['roll_sig_amp_deg']:8.2f} deg  (2 sigma)",
-        f"  roll max              {m['roll_max_deg']:8.2f} deg",
-        f"  fin drag power        {m['fin_drag_power_kw']:8.1f} kW  (mean)",
-        f"  run folder            {folder}",
-    ]
-    if error:
-        lines.append(f"  STOPPED EARLY: {error}")
+_SIM_ROWS = (
+    ("roll RMS", "roll_rms_deg", "deg", ".2f"),
+    ("roll mean", "roll_mean_deg", "deg", ".2f"),
+    ("significant amplitude", "roll_sig_amp_deg", "deg", ".2f"),
+    ("roll max", "roll_max_deg", "deg", ".2f"),
+    ("fin RMS", "fin_rms_deg", "deg", ".2f"),
+    ("fin max", "fin_max_deg", "deg", ".2f"),
+    ("fin rate RMS", "fin_rate_rms_deg_s", "deg/s", ".2f"),
+    ("time at angle limit", "time_at_angle_limit_pct", "%", ".1f"),
+    ("time at rate limit", "time_at_rate_limit_pct", "%", ".1f"),
+    ("time at stall/load limit", "time_at_stall_or_load_limit_pct", "%", ".1f"),
+    ("lateral accel RMS", "lateral_accel_rms_g", "g", ".4f"),
+    ("MII standing people", "mii_per_min", "/min", ".3f"),
+    ("MII object", "mii_object_per_min", "/min", ".3f"),
+    ("fin drag power (mean)", "fin_drag_power_kw", "kW", ".1f"),
+)
+
+
+def _sim_text(scenario, folder, out, per_run, shown, errors) -> str:
+    lines = [f"{scenario.name} — stabiliser {out['stabiliser']}, seed {out['seed']}",
+             f"  natural roll period {out['natural_period_s']:.2f} s; duration {out['duration_s']:.1f} s "
+             f"(statistics from {out['stats_from_s']:.0f} s)"]
+    lines.append(f"  {'':30s}" + "".join(f"{('stabiliser ' + m):>16s}" for m in shown))
+    for label, key, unit, fmt in _SIM_ROWS:
+        vals = [per_run[m].get(key) for m in shown]
+        if all(v is None for v in vals):
+            continue
+        cells = "".join(f"{format(v, fmt) if isinstance(v, (int, float)) and math.isfinite(v) else '-':>16s}" for v in vals)
+        lines.append(f"  {label + ', ' + unit:30s}{cells}")
+    crit = per_run[shown[-1]].get("nordforsk_criterion")
+    if crit:
+        for m in shown:
+            r = per_run[m]
+            ok = lambda b: "within" if b else "OUTSIDE"  # noqa: E731
+            lines.append(f"  NORDFORSK 1987 '{crit}' ({m}): roll {ok(r.get('nordforsk_roll_ok'))}, "
+                         f"lateral acceleration {ok(r.get('nordforsk_lat_acc_ok'))} the limits")
+    rr = out.get("roll_reduction_pct")
+    if rr is not None:
+        lines.append(f"  roll reduction          {rr:8.1f} %  (1 - sigma_on/sigma_off, same sea and seed)")
+    if out.get("ideal_roll_reduction_pct") is not None:
+        lines.append(f"  ideal bound             {out['ideal_roll_reduction_pct']:8.1f} %  (perfect foresight, same fins and limits)")
+        if out.get("efficiency") is not None:
+            lines.append(f"  efficiency              {out['efficiency']:8.3f}    (roll reduction / ideal bound)")
+    lines.append(f"  run folder              {folder}")
+    for m, e in errors.items():
+        lines.append(f"  STOPPED EARLY ({m}): {e}")
+    return "\n".join(lines)
+
+
+# ----------------------------------------------------------------------------------------------
+# finloop sweep
+# ----------------------------------------------------------------------------------------------
+
+
+def cmd_sweep(args) -> int:
+    import time
+
+    from .config import file_sha256
+    from .runfolder import base_meta, new_run_folder, utc_now, write_json
+    from .sweep import load_envelope, plot_sweep, run_sweep, write_sweep_csv
+
+    env = load_envelope(args.envelope)
+    for w in env.base.warnings:
+        print(str(w), file=sys.stderr)
+    if args.workers is not None and args.workers < 1:
+        raise UsageError(f"--workers must be >= 1, got {args.workers}")
+    start = utc_now()
+    folder = new_run_folder(Path(args.runs_dir), Path(args.envelope).stem, Path(args.out) if args.out else None, start)
+    t0 = time.perf_counter()
+    if args.no_progress:
+        rows = run_sweep(env, workers=args.workers)
+    else:
+        from rich.console import Console
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+
+        with Progress(TextColumn("sweep"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(), TimeRemainingColumn(),
+                      console=Console(stderr=True), transient=True) as prog:
+            task = prog.add_task("points", total=env.n_points)
+            rows = run_sweep(env, workers=args.workers, progress=lambda d, n: prog.update(task, completed=d))
+    wall = time.perf_counter() - t0
+    header = write_sweep_csv(folder / "sweep.csv", rows)
+    summary = {
+        "envelope": env.name,
+        "points": env.n_points,
+        "runs": 2 * env.n_points,
+        "run_duration_s": env.duration_s,
+        "seed": env.seed,
+        "wall_time_s": wall,
+        "runs_per_s": 2 * env.n_points / wall if wall > 0 else None,
+        "synchronous_points": sum(r["synchronous"] for r in rows),
+        "saturated_points": sum(r["saturated"] for r in rows),
+        "stopped_early_points": sum(bool(r["stopped_early"]) for r in rows),
+    }
+    write_json(folder / "sweep.json", _clean({"summary": summary, "points": rows}))
+    meta = base_meta(start)
+    meta.update(envelope_file=str(Path(args.envelope)), seed=env.seed, config_sha256=file_sha256(env.files),
+                files={str(p): file_sha256([p]) for p in env.files}, csv_columns=header, workers=args.workers)
+    write_json(folder / "meta.json", _clean(meta))
+    plots = [] if args.no_plots else plot_sweep(folder, rows, env)
+    out = {"run_folder": str(folder), **_clean(summary), "plots": [str(p) for p in plots]}
+    if args.json:
+        out["points"] = _clean(rows)
+    _emit(args, out, _sweep_text(env, rows, summary, folder))
+    return EXIT_OK if not summary["stopped_early_points"] else EXIT_RUN_STOPPED
+
+
+def _sweep_text(env, rows, summary, folder) -> str:
+    lines = [f"{env.name}: {summary['points']} points x (off, on), {env.duration_s:g} s each, seed {env.seed}; "
+             f"{summary['wall_time_s']:.1f} s wall ({summary['runs_per_s']:.2f} runs/s)",
+             f"  {'sea':>10s} {'speed kn':>8s} {'head deg':>8s} {'off deg':>8s} {'on deg':>8s} {'RR %':>7s} {'fin deg':>8s} "
+             f"{'T_e/T_r':>8s}  flags"]
+    for r in rows:
+        flags = ",".join(f for f, on in (("synchronous", r["synchronous"]), ("saturated", r["saturated"]),
+                                          ("STOPPED", bool(r["stopped_early"]))) if on)
+        lines.append(f"  {r['sea_state'][:10]:>10s} {r['speed_kn']:8.1f} {r['heading_deg']:8.0f} {r['roll_std_off_deg']:8.2f} "
+                     f"{r['roll_std_on_deg']:8.2f} {r['roll_reduction_pct']:7.1f} {r['fin_rms_deg']:8.2f} "
+                     f"{r['encounter_to_roll_period_ratio']:8.2f}  {flags}")
+    lines.append(f"  run folder {folder}")
     return "\n".join(lines)
 
 
@@ -213,26 +400,63 @@ def build_parser() -> argparse.ArgumentParser:
         "sim",
         help="simulate a scenario (vessel, sea, fins, sensors) and write a run folder",
         description=(
-            "Simulate SCENARIO.toml at its fixed control rate and write a run folder: steps.csv "
-            "(one row per control step, units in the column names), meta.json (seed, config hash, "
-            "version), metrics.json and PNG plots. Prints roll statistics (RMS, significant "
-            "amplitude = 2 sigma, max) taken after the scenario's warm-up."
+            "Simulate SCENARIO.toml at its fixed control rate, with the stabiliser off (fins centred), on "
+            "(the controller in closed loop with modelled sensors and actuators) or both over the same "
+            "sea, and write a run folder: steps.csv (one row per control step, units in the column "
+            "names; steps_off.csv and steps_on.csv for both), meta.json (seed, config hashes, version), "
+            "metrics.json and PNG plots. Statistics are taken after the scenario's warm-up: roll RMS, "
+            "significant amplitude (2 sigma), max; fin angle and rate; time at the angle, rate and "
+            "stall/load limits; lateral acceleration, motion-induced interruptions (Graham 1990) and "
+            "the NORDFORSK 1987 check at the scenario's deck point; fin drag power; and for both the "
+            "roll reduction RR = 1 - sigma_on/sigma_off."
         ),
-        epilog="example: finloop sim configs/scenarios/beam_sea_service_speed.toml --stabiliser off",
+        epilog=("examples:\n  finloop sim configs/scenarios/beam_sea_service_speed.toml --stabiliser both\n"
+                "  finloop sim configs/scenarios/beam_sea_service_speed.toml --stabiliser both --ideal --json\n\n" + SAFETY),
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     s.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file (see configs/scenarios/)")
     s.add_argument(
         "--stabiliser",
-        choices=["off"],
+        choices=["off", "on", "both"],
         default="off",
-        help="off: fins demanded to centre all run (the passive ship). Closed-loop modes arrive with the tuning work.",
+        help=("off: fins demanded to centre all run (the passive ship); on: the controller in closed loop; "
+              "both: off and on over the same sea (same seed), with the roll reduction (default: off)"),
     )
+    s.add_argument("--controller", default=None, metavar="CONTROLLER.toml",
+                   help="controller config for on/both (default: the scenario's controller_file)")
+    s.add_argument("--ideal", action="store_true",
+                   help="also compute the ideal bound (best roll reduction with perfect foresight, same fins and "
+                        "limits; a QP, ~10 s) and the efficiency = roll reduction / ideal bound")
     s.add_argument("--seed", type=_nonneg_int, default=None, help="override the scenario's random seed")
     s.add_argument("--out", default=None, help="run folder to create (must be new or empty); default: RUNS_DIR/<scenario>-<UTC time>")
     s.add_argument("--runs-dir", default="runs", help="parent folder for run folders (default: ./runs)")
     s.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     s.add_argument("--json", action="store_true", help="print the metrics as JSON on stdout")
     s.set_defaults(func=cmd_sim)
+
+    w = sub.add_parser(
+        "sweep",
+        help="simulate a grid of speeds x headings x sea states, off and on, and map the roll reduction",
+        description=(
+            "Run every point of ENVELOPE.toml (speeds x headings x sea states; see configs/envelopes/) twice "
+            "over the same sea (same seed): stabiliser off and on. Points run in parallel worker processes. "
+            "Writes sweep.csv and sweep.json (one row per point: roll sigma off/on, roll reduction, fin use, "
+            "time at limits, encounter period at the spectral peak over the natural roll period, and flags), "
+            "meta.json and polar plots of roll reduction and residual roll against heading, one line per "
+            "speed. Flags: 'synchronous' when the encounter period at the spectral peak is within the "
+            "envelope's sync_band_pct of the natural roll period; 'saturated' when the fins spend more than "
+            "saturation_pct of the time at the angle, rate or stall/load limit."
+        ),
+        epilog="example: finloop sweep configs/envelopes/demo_pax_135.toml --workers 2",
+    )
+    w.add_argument("envelope", metavar="ENVELOPE.toml", help="envelope file (see configs/envelopes/)")
+    w.add_argument("--workers", type=int, default=None, help="worker processes (default: one per CPU; 1 = run in this process)")
+    w.add_argument("--out", default=None, help="folder to create (must be new or empty); default: RUNS_DIR/<envelope>-<UTC time>")
+    w.add_argument("--runs-dir", default="runs", help="parent folder for result folders (default: ./runs)")
+    w.add_argument("--no-plots", action="store_true", help="skip the polar plots")
+    w.add_argument("--no-progress", action="store_true", help="no progress bar on stderr")
+    w.add_argument("--json", action="store_true", help="print the summary and every point as JSON on stdout")
+    w.set_defaults(func=cmd_sweep)
 
     v = sub.add_parser(
         "validate",

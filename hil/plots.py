@@ -67,3 +67,91 @@ def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Pat
         plt.close(fig)
         out.append(p)
     return out
+
+
+_COLOURS = {"off": "tab:gray", "on": "tab:blue"}
+
+
+def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scenario, params) -> list[Path]:
+    """roll.png (roll on vs off), roll_spectrum.png (Welch, on vs off), fins.png (fin angles with limits)."""
+    from scipy.signal import welch
+
+    plt = _pyplot()
+    out = []
+    name = scenario.name
+    fig, ax = plt.subplots(2, 1, figsize=(10, 6), sharex=True)
+    for mode, rec in runs.items():
+        ax[0].plot(rec["t_s"], np.degrees(rec["roll_rad"]), lw=0.7, color=_COLOURS[mode], label=f"stabiliser {mode}")
+    ax[0].axvspan(0, scenario.warmup_s, color="0.92", label="warm-up (not in statistics)")
+    ax[0].set_ylabel("roll, deg")
+    ax[0].legend(loc="upper right", fontsize=8)
+    ax[0].grid(alpha=0.3)
+    rec = next(iter(runs.values()))
+    ax[1].plot(rec["t_s"], rec["wave_moment_n_m"] / 1e3, lw=0.6, color="tab:green", label="wave")
+    if "on" in runs:
+        ax[1].plot(runs["on"]["t_s"], runs["on"]["fin_moment_n_m"] / 1e3, lw=0.6, color="tab:blue", label="fins (on)")
+    ax[1].set_ylabel("roll moment, kN·m")
+    ax[1].set_xlabel("time, s")
+    ax[1].legend(loc="upper right", fontsize=8)
+    ax[1].grid(alpha=0.3)
+    fig.suptitle(f"{name} — roll")
+    fig.tight_layout()
+    p = folder / "roll.png"
+    fig.savefig(p, dpi=110)
+    plt.close(fig)
+    out.append(p)
+
+    fig, ax = plt.subplots(figsize=(8, 4.5))
+    drawn = False
+    for mode, rec in runs.items():
+        t = rec["t_s"]
+        sel = (t >= scenario.warmup_s) & np.isfinite(rec["roll_rad"])
+        if np.count_nonzero(sel) <= 256:
+            continue
+        fs = 1.0 / (t[1] - t[0])
+        f, s = welch(np.degrees(rec["roll_rad"][sel]), fs=fs, nperseg=np.count_nonzero(sel) // 4)
+        ax.plot(2 * np.pi * f, s / (2 * np.pi), lw=1.0, color=_COLOURS[mode], label=f"stabiliser {mode}")
+        drawn = True
+    if drawn:
+        w0 = 2 * np.pi / scenario.vessel.params.natural_period_s
+        ax.axvline(w0, color="r", ls="--", lw=0.8, label=f"natural roll frequency {w0:.3f} rad/s")
+        ax.set_xlim(0, 2.0)
+        ax.set_xlabel("encounter frequency, rad/s")
+        ax.set_ylabel("roll spectrum, deg²·s/rad")
+        ax.grid(alpha=0.3)
+        ax.legend(fontsize=8)
+        ax.set_title(f"{name} — roll spectra (Welch)")
+        fig.tight_layout()
+        p = folder / "roll_spectrum.png"
+        fig.savefig(p, dpi=110)
+        out.append(p)
+    plt.close(fig)
+
+    if "on" in runs:
+        rec = runs["on"]
+        t = rec["t_s"]
+        fig, ax = plt.subplots(2, 1, figsize=(10, 6), sharex=True)
+        ax[0].plot(t, np.degrees(rec["fin_port_rad"]), lw=0.6, label="port fin")
+        ax[0].plot(t, np.degrees(rec["fin_stbd_rad"]), lw=0.6, label="starboard fin")
+        a = np.degrees(params.angle_limit)
+        ax[0].axhline(a, color="r", lw=0.8, ls="--", label=f"angle limit ±{a:.0f} deg")
+        ax[0].axhline(-a, color="r", lw=0.8, ls="--")
+        ax[0].set_ylabel("fin angle, deg")
+        ax[0].legend(loc="upper right", fontsize=8)
+        ax[0].grid(alpha=0.3)
+        ae = np.degrees(rec["fin_stbd_alpha_eff_rad"])
+        ax[1].plot(t, ae, lw=0.6, color="tab:orange", label="starboard effective angle of attack")
+        st = np.degrees(scenario.vessel.fin_stbd.stall_angle_rad)
+        ax[1].axhline(st, color="r", lw=0.8, ls="--", label=f"stall ±{st:.0f} deg")
+        ax[1].axhline(-st, color="r", lw=0.8, ls="--")
+        ax[1].set_ylabel("angle, deg")
+        ax[1].set_xlabel("time, s")
+        ax[1].legend(loc="upper right", fontsize=8)
+        ax[1].grid(alpha=0.3)
+        fig.suptitle(f"{name} — fins (stabiliser on)")
+        fig.tight_layout()
+        p = folder / "fins.png"
+        fig.savefig(p, dpi=110)
+        plt.close(fig)
+        out.append(p)
+    return out

@@ -52,6 +52,21 @@ CSV_COLUMNS: tuple[tuple[str, str, float], ...] = (
     ("meas_fin_port_valid", "meas_fin_port_valid", 1.0),
     ("meas_fin_stbd_rad", "meas_fin_stbd_deg", _DEG),
     ("meas_fin_stbd_valid", "meas_fin_stbd_valid", 1.0),
+    ("ctl_mode", "ctl_mode", 1.0),
+    ("ctl_faults", "ctl_faults", 1.0),
+    ("ctl_limiter", "ctl_limiter", 1.0),
+    ("ctl_roll_rad", "ctl_roll_deg", _DEG),
+    ("ctl_roll_rate_rad_s", "ctl_roll_rate_deg_s", _DEG),
+    ("ctl_roll_accel_rad_s2", "ctl_roll_accel_deg_s2", _DEG),
+    ("ctl_speed_ms", "ctl_speed_kn", 1.0 / KNOT),
+    ("ctl_speed_factor", "ctl_speed_factor", 1.0),
+    ("ctl_term_roll_rad", "ctl_term_roll_deg", _DEG),
+    ("ctl_term_rate_rad", "ctl_term_rate_deg", _DEG),
+    ("ctl_term_accel_rad", "ctl_term_accel_deg", _DEG),
+    ("ctl_term_heel_rad", "ctl_term_heel_deg", _DEG),
+    ("ctl_command_rad", "ctl_command_deg", _DEG),
+    ("ctl_target_rad", "ctl_target_deg", _DEG),
+    ("ctl_fade", "ctl_fade", 1.0),
 )
 
 
