@@ -352,9 +352,17 @@ def validate_file(path: str):
             from .controller_config import read_controller_file
 
             read_controller_file(Path(path), table, problems)
+        elif kind == "envelope":
+            from .sweep import _read_envelope
+
+            _read_envelope(Path(path), table, problems)
+        elif kind == "links":
+            from .links_config import read_links
+
+            read_links(Path(path), table, problems)
         else:
             problems.add(Problem(str(path), "", NO_VALUE, "",
-                                 "not a finloop config: expected a [scenario], [vessel] or [controller] table"))
+                                 "not a finloop config: expected a [scenario], [vessel], [controller], [envelope] or [links] table"))
     return kind, problems.items
 
 

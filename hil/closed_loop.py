@@ -85,25 +85,28 @@ def run_closed_loop(
 
     check_rates(scenario, params)
     plant, notes = build_plant(scenario, seed)
+    records, error = drive(plant, params, options)
+    metrics = roll_metrics(records, scenario.warmup_s)
+    return SimResult(records, metrics, error, notes)
+
+
+def drive(plant, params: ControllerParams, options: LoopOptions = LoopOptions()) -> tuple[dict[str, np.ndarray], str | None]:
+    """Step ``params``' controller against a fresh ``plant`` to its end; (records, error or None)."""
     n = plant.n_steps
     speed0 = plant.setup.speed_values_ms[0]
     state = initial_state(params, mode=options.start_mode, speed=speed0 if options.start_mode != Mode.OFF else None)
     floats = {key: [math.nan] * (n + 1) for key, _ in CONTROLLER_FLOAT_FIELDS}
     ints = {key: [0] * (n + 1) for key, _ in CONTROLLER_INT_FIELDS}
-    f_lists = [(floats[key], field) for key, field in CONTROLLER_FLOAT_FIELDS]
-    i_lists = [(ints[key], field) for key, field in CONTROLLER_INT_FIELDS]
-    f_idx = [(lst, _out_index(field)) for lst, field in f_lists]
-    i_idx = [(lst, _out_index(field)) for lst, field in i_lists]
+    f_idx = [(floats[key], _out_index(field)) for key, field in CONTROLLER_FLOAT_FIELDS]
+    i_idx = [(ints[key], _out_index(field)) for key, field in CONTROLLER_INT_FIELDS]
     trim = float(options.gain_trim_pct)
     heel = bool(options.heel_trim_on)
     meas = plant.meas[0]
     plant_step = plant.step
     error = None
-    k = 0
     try:
         for k in range(n):
-            inputs = ControllerInputs(*meas[1:], 0, trim, heel)
-            state, out = step(params, state, inputs)
+            state, out = step(params, state, ControllerInputs(*meas[1:], 0, trim, heel))
             for lst, i in f_idx:
                 lst[k] = out[i]
             for lst, i in i_idx:
@@ -117,8 +120,7 @@ def run_closed_loop(
         records[key] = np.asarray(lst[:rows], dtype=float)
     for key, lst in ints.items():
         records[key] = np.asarray(lst[:rows], dtype=np.int64)
-    metrics = roll_metrics(records, scenario.warmup_s)
-    return SimResult(records, metrics, error, notes)
+    return records, error
 
 
 def _out_index(field: str) -> int:

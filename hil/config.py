@@ -88,7 +88,7 @@ def file_sha256(paths) -> str:
 
 
 def detect_kind(table: dict) -> str | None:
-    for kind in ("scenario", "vessel", "controller", "links"):
+    for kind in ("scenario", "vessel", "controller", "envelope", "links"):
         if kind in table:
             return kind
     return None
