@@ -95,31 +95,33 @@ def drive(plant, params: ControllerParams, options: LoopOptions = LoopOptions())
     n = plant.n_steps
     speed0 = plant.setup.speed_values_ms[0]
     state = initial_state(params, mode=options.start_mode, speed=speed0 if options.start_mode != Mode.OFF else None)
-    floats = {key: [math.nan] * (n + 1) for key, _ in CONTROLLER_FLOAT_FIELDS}
-    ints = {key: [0] * (n + 1) for key, _ in CONTROLLER_INT_FIELDS}
-    f_idx = [(floats[key], _out_index(field)) for key, field in CONTROLLER_FLOAT_FIELDS]
-    i_idx = [(ints[key], _out_index(field)) for key, field in CONTROLLER_INT_FIELDS]
     trim = float(options.gain_trim_pct)
     heel = bool(options.heel_trim_on)
     meas = plant.meas[0]
     plant_step = plant.step
+    outs = []
+    keep = outs.append
     error = None
     try:
-        for k in range(n):
+        for _ in range(n):
             state, out = step(params, state, ControllerInputs(*meas[1:], 0, trim, heel))
-            for lst, i in f_idx:
-                lst[k] = out[i]
-            for lst, i in i_idx:
-                lst[k] = int(out[i])
+            keep(out)
             meas = plant_step(out.fin_port, out.fin_stbd)
     except PlantError as exc:
         error = str(exc)
     records = plant.records()
     rows = len(records["t_s"])
-    for key, lst in floats.items():
-        records[key] = np.asarray(lst[:rows], dtype=float)
-    for key, lst in ints.items():
-        records[key] = np.asarray(lst[:rows], dtype=np.int64)
+    cols = list(zip(*outs)) if outs else [() for _ in ControllerOutputs._fields]
+    for key, field in CONTROLLER_FLOAT_FIELDS:
+        a = np.full(rows, np.nan)
+        v = cols[_out_index(field)][: rows]
+        a[: len(v)] = v
+        records[key] = a
+    for key, field in CONTROLLER_INT_FIELDS:
+        a = np.zeros(rows, dtype=np.int64)
+        v = cols[_out_index(field)][: rows]
+        a[: len(v)] = np.fromiter((int(x) for x in v), dtype=np.int64, count=len(v))
+        records[key] = a
     return records, error
 
 
