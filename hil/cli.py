@@ -479,6 +479,10 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("files", nargs="+", metavar="FILE", help="TOML config file(s)")
     v.add_argument("--json", action="store_true", help="print the result as JSON")
     v.set_defaults(func=cmd_validate)
+
+    from .cmd_tune import register as _register_tune
+
+    _register_tune(sub)
     return p
 
 
