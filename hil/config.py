@@ -77,6 +77,7 @@ class Scenario:
     source: Path
     files: tuple[Path, ...]  # every file this scenario depends on (for hashing)
     warnings: tuple[Problem, ...] = field(default=())
+    comfort: object | None = None  # hil.comfort.ComfortSpec (defaults when the file has no [comfort])
 
 
 def file_sha256(paths) -> str:
@@ -236,6 +237,10 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     wr = vr.table_reader("wave_moment")
     method = wr.string("method", choices=MOMENT_METHODS)
     reff = wr.number("effective_slope_coefficient", lo=0.0, hi=1.5, default=0.7)
+    # short-wave reduction: average the slope over the waterplane beam (plant/waves.EffectiveSlope)
+    swr = wr.string("short_wave_reduction", choices=("beam_average", "none"), default="beam_average")
+    if method == "rao_table" and wr.has("short_wave_reduction"):
+        wr.error("short_wave_reduction", wr.table["short_wave_reduction"], "", 'only used with method = "effective_slope"')
     rao = None
     if method == "rao_table":
         rao = wr.path_value("rao_file")
@@ -300,7 +305,7 @@ def read_vessel(path: Path, table: dict | None, problems: Problems) -> Vessel | 
     top.done()
     if problems.errors:
         return None
-    return Vessel(vp, fin_p, fin_s, act_p, act_s, WaveMomentSpec(method, reff, rao), Path(path))
+    return Vessel(vp, fin_p, fin_s, act_p, act_s, WaveMomentSpec(method, reff, rao, beam if swr == "beam_average" else 0.0), Path(path))
 
 
 def load_vessel(path: str | Path, problems: Problems | None = None) -> Vessel:
@@ -466,6 +471,32 @@ def _read_external(top: Reader, disp_kg: float) -> tuple[ExternalMoment, ...]:
     return tuple(out)
 
 
+def _read_comfort(top: Reader):
+    """``[comfort]`` (optional): deck point, NORDFORSK criterion, tipping person and a second object."""
+    from .comfort import NORDFORSK_NAMES, ComfortSpec
+
+    cr = top.table_reader("comfort", required=False)
+    if cr is None:
+        return ComfortSpec()
+    h = cr.number("deck_point_height_m", unit="m", lo=0.0, hi=60.0)
+    y = cr.number("deck_point_offset_m", unit="m", lo=-30.0, hi=30.0, default=0.0)
+    crit = cr.string("criterion", choices=NORDFORSK_NAMES)
+    ratio = cr.number("person_tipping_ratio", lo=0.05, hi=1.0, default=0.25)
+    hyst = cr.number("hysteresis_pct", unit="%", lo=0.0, hi=90.0, default=0.0)
+    obj = cr.table_reader("object", required=False)
+    hw, cg, mu = 0.25, 0.8, 0.5
+    if obj is not None:
+        hw = obj.number("half_width_m", unit="m", lo=0.01, hi=5.0)
+        cg = obj.number("cg_height_m", unit="m", lo=0.01, hi=5.0)
+        mu = obj.number("friction", lo=0.0, hi=2.0)
+        obj.done()
+    cr.done()
+    try:
+        return ComfortSpec(h, y, crit, ratio, hw, cg, mu, hyst / 100.0)
+    except (ValueError, TypeError):  # only reachable with values already reported above
+        return None
+
+
 def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | None:
     top = Reader(path, table, problems)
     sr = top.table_reader("scenario")
@@ -526,6 +557,7 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
     disp = vessel.params.displacement_kg if vessel is not None else math.nan
     external = _read_external(top, disp)
     faults = _read_faults(top, duration)
+    comfort = _read_comfort(top)
     top.done()
 
     files: list[Path] = [Path(path)]
@@ -568,7 +600,7 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
         fins_when_off=fins_off,
     )
     return Scenario(name, setup, vessel, sea, heading, warmup, controller_path, controller, Path(path), tuple(files),
-                    tuple(problems.warnings))
+                    tuple(problems.warnings), comfort)
 
 
 def load_scenario(path: str | Path, problems: Problems | None = None) -> Scenario:
