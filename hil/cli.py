@@ -202,7 +202,7 @@ def cmd_sim(args) -> int:
     _emit(args, out, _sim_text(scenario, folder, out_metrics, metrics, shown, errors))
     if errors:
         for m, e in errors.items():
-            print(f"finloop sim: run with stabiliser {m} stopped early: {e} (records up to then are in {folder})",
+            print(f"finloop sim: run stopped early (stabiliser {m}): {e} (records up to then are in {folder})",
                   file=sys.stderr)
         return EXIT_RUN_STOPPED
     return EXIT_OK

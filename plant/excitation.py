@@ -43,11 +43,14 @@ class WaveMomentSpec:
     """How waves make a roll moment on this hull.
 
     method: ``effective_slope`` (Froude–Krylov with coefficient r_eff) or ``rao_table`` (CSV).
+    slope_beam_m: effective slope only: average the wave slope over this waterplane beam (m) —
+    the short-wave reduction (0 = slope at the centreline, no reduction).
     """
 
     method: str
     effective_slope_coefficient: float = 0.7
     rao_file: Path | None = None
+    slope_beam_m: float = 0.0
 
 
 def spectrum_of(sea: SeaSpec):
@@ -73,7 +76,8 @@ def roll_moment_model(wave_moment: WaveMomentSpec, vessel):
 
     if wave_moment.method == "rao_table":
         return read_rao_csv(wave_moment.rao_file)
-    return EffectiveSlope(vessel.displacement_kg, vessel.gm_m, wave_moment.effective_slope_coefficient)
+    return EffectiveSlope(vessel.displacement_kg, vessel.gm_m, wave_moment.effective_slope_coefficient,
+                          wave_moment.slope_beam_m)
 
 
 def sea_components(sea: SeaSpec, rng: np.random.Generator):

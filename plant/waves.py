@@ -597,6 +597,14 @@ class EffectiveSlope:
     M = −Δ g GM r_eff ∂ζ/∂y; for ζ = a cos ψ this is Δ g GM r_eff a k sin β sin ψ, so
     X(ω, β) = −i Δ g GM r_eff (ω²/g) sin β.
 
+    With ``beam_m`` = B > 0 the slope is averaged across the waterplane, y ∈ [−B/2, B/2], instead
+    of taken at the centreline: the mean of ∂ζ/∂y over the beam is [ζ(B/2) − ζ(−B/2)]/B, which for
+    a component with transverse wavenumber k_y = k sin β multiplies the slope by
+    sinc(k_y B/2) = sin(k_y B/2)/(k_y B/2). Waves much longer than the beam keep their full slope;
+    waves about as short as the beam lose most of it (and reverse beyond k_y B = 2π). This is the
+    short-wave reduction the plain effective-slope model lacks (derivation; the idea of a
+    frequency-dependent effective slope is standard, e.g. Lloyd, Seakeeping 1989 — from memory).
+
     Parameters
     ----------
     displacement : float
@@ -605,23 +613,31 @@ class EffectiveSlope:
         Metacentric height GM, m (> 0).
     r_eff : float
         Effective wave slope coefficient, − (≥ 0; 1 = the full surface slope).
+    beam_m : float
+        Waterplane beam B over which the slope is averaged, m (0 = slope at the centreline).
     """
 
     displacement: float
     gm: float
     r_eff: float = 1.0
+    beam_m: float = 0.0
 
     def __post_init__(self) -> None:
-        for name, unit, low_ok in (("displacement", "kg", False), ("gm", "m", False), ("r_eff", "-", True)):
+        for name, unit, low_ok in (("displacement", "kg", False), ("gm", "m", False), ("r_eff", "-", True),
+                                   ("beam_m", "m", True)):
             v = float(getattr(self, name))
             if not math.isfinite(v) or v < 0.0 or (v == 0.0 and not low_ok):
                 raise ValueError(f"{name} = {v!r} {unit}: must be finite and " + (">= 0" if low_ok else "> 0"))
             object.__setattr__(self, name, v)
 
     def transfer(self, omega: np.ndarray, heading: float) -> np.ndarray:
-        """X = −i Δ g GM r_eff (ω²/g) sin β, N·m per m of wave amplitude."""
+        """X = −i Δ g GM r_eff (ω²/g) sin β · sinc(k B sin β / 2), N·m per m of wave amplitude."""
         w = np.asarray(omega, dtype=float)
-        slope = w * w / G * math.sin(float(heading))
+        s_b = math.sin(float(heading))
+        slope = w * w / G * s_b
+        if self.beam_m > 0.0:
+            half = 0.5 * (w * w / G) * s_b * self.beam_m  # k_y B / 2
+            slope = slope * np.sinc(half / np.pi)  # numpy's sinc is sin(πx)/(πx)
         return -1j * (self.displacement * G * self.gm * self.r_eff) * slope
 
     def warnings(self, components: Components, heading: float) -> tuple[str, ...]:

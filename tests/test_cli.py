@@ -98,7 +98,8 @@ def test_validate_accepts_every_bundled_config(capsys):
     assert main(["validate", "--json", *files]) == 0
     res = json.loads(capsys.readouterr().out)
     assert res["ok"] and all(f["ok"] for f in res["files"])
-    assert {f["kind"] for f in res["files"]} == {"scenario", "vessel", "controller"}
+    kinds = {f["kind"] for f in res["files"]}
+    assert {"scenario", "vessel", "controller", "envelope"} <= kinds <= {"scenario", "vessel", "controller", "envelope", "links"}
 
 
 def test_validate_lists_every_problem_and_exits_2(tmp_path, capsys):
@@ -158,7 +159,7 @@ def test_a_capsizing_run_stops_early_keeps_its_records_and_exits_3(tmp_path, cap
     cap = capsys.readouterr()
     assert code == 3
     res = json.loads(cap.out)
-    assert "roll left the model's range" in res["stopped_early"]
+    assert "roll left the model's range" in res["stopped_early"]["off"]
     assert "run stopped early" in cap.err
     data = np.loadtxt(out / "steps.csv", delimiter=",", skiprows=1)
     assert 100.0 < data[-1, 0] < 1200.0  # recorded up to the capsize

@@ -184,7 +184,7 @@ def test_faults_and_external_moments_are_read_in_trade_units(tmp_path):
 
 
 def test_rao_table_vessel_rolls_like_the_effective_slope_vessel_it_tabulates(tmp_path):
-    # The demo RAO table is the effective-slope RAO (|X| = Δ g GM r_eff k sin β, θ = −90°;
+    # The demo RAO table is the effective-slope RAO (|X| = Δ g GM r_eff k sin β·sinc(k sin β B/2), θ = ∓90°;
     # DEVELOPERS.md) tabulated every 15° and 0.05 rad/s; through the whole pipeline the roll must
     # agree with the direct model to the table's linear-interpolation error (< 2 % of σ here).
     import numpy as np

@@ -290,7 +290,9 @@ def test_wave_grid_integrates_the_moment_spectrum_in_wave_frequency(vessel):
     lo, hi = frequency_band(sea.spectrum, 1e-3)
     g = 9.80665
     k = vessel.params.displacement_kg * g * vessel.params.gm_m * vessel.wave_moment.effective_slope_coefficient
-    ref = integrate.quad(lambda w: (k * w * w / g * math.sin(math.radians(60))) ** 2 * float(sea.spectrum(w)),
+    b = vessel.wave_moment.slope_beam_m  # short-wave reduction: slope averaged over the beam, sinc(k_y B/2)
+    ky = lambda w: w * w / g * math.sin(math.radians(60))  # noqa: E731
+    ref = integrate.quad(lambda w: (k * ky(w) * np.sinc(ky(w) * b / 2 / math.pi)) ** 2 * float(sea.spectrum(w)),
                          lo, hi, limit=400, epsrel=1e-10)[0]
     assert weights.sum() == pytest.approx(ref, rel=1e-5)
     # encounter frequency, Fossen 2021 §8.1 (ω_e = ω − ω² U cos β / g) at the band's lower edge

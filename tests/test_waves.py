@@ -471,3 +471,22 @@ def test_time_series_reader_picks_elevation_or_moment_from_the_header(tmp_path: 
 def test_missing_file_is_a_sea_input_error(tmp_path: Path) -> None:
     with pytest.raises(SeaInputError, match="cannot read"):
         read_moment_csv(tmp_path / "nope.csv")
+
+
+@pytest.mark.parametrize("omega,heading_deg", [(0.4, 90.0), (0.9, 90.0), (1.4, 60.0), (2.2, 120.0)])
+def test_beam_averaged_slope_equals_numerical_mean_of_the_surface_slope_across_the_beam(omega, heading_deg):
+    # Mean slope over the waterplane: (1/B)∫ ∂ζ/∂y dy for ζ = a cos(ωt − k_y y), k_y = k sin β,
+    # k = ω²/g (deep-water dispersion, DNV-RP-C205 §3.2), integrated with scipy.integrate.quad and
+    # compared with the closed form the model uses (amplitude of the moment per metre of wave).
+    from scipy.integrate import quad
+
+    beam = 22.0
+    beta = math.radians(heading_deg)
+    k_y = omega**2 / G * math.sin(beta)
+    avg_cos = quad(lambda y: k_y * math.cos(k_y * y), -beam / 2, beam / 2)[0] / beam  # at phase 0 (y-even part)
+    model = EffectiveSlope(displacement=4.0e6, gm=1.3, r_eff=0.75, beam_m=beam)
+    x = abs(model.transfer(np.array([omega]), beta)[0]) / (4.0e6 * G * 1.3 * 0.75)
+    assert x == pytest.approx(abs(avg_cos), rel=1e-9)
+    # and B = 0 is the centreline slope k sin β
+    plain = EffectiveSlope(displacement=4.0e6, gm=1.3, r_eff=0.75)
+    assert abs(plain.transfer(np.array([omega]), beta)[0]) / (4.0e6 * G * 1.3 * 0.75) == pytest.approx(abs(k_y), rel=1e-12)
