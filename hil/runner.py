@@ -204,9 +204,11 @@ class RunnerCore:
         }
 
 
-def replay_inputs(params: ControllerParams, rows, start_mode: Mode = Mode.STANDBY) -> list[ControllerOutputs]:
-    """Feed recorded input rows (INPUT_COLUMNS order, SI) through the law from power-up."""
-    state = initial_state(params, mode=start_mode)
+def replay_inputs(params: ControllerParams, rows, start_mode: Mode = Mode.STANDBY,
+                  speed: float | None = None) -> list[ControllerOutputs]:
+    """Feed recorded input rows (INPUT_COLUMNS order, SI) through the law from ``initial_state``
+    (power-up in ``start_mode``; ``speed`` pre-loads the speed filter as a simulation does)."""
+    state = initial_state(params, mode=start_mode, speed=speed)
     outs = []
     for r in rows:
         inp = ControllerInputs(
