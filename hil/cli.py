@@ -357,9 +357,9 @@ def validate_file(path: str):
 
             _read_envelope(Path(path), table, problems)
         elif kind == "links":
-            from .links_config import read_links
+            from .links_config import read_links_file
 
-            read_links(Path(path), table, problems)
+            read_links_file(Path(path), table, problems)
         else:
             problems.add(Problem(str(path), "", NO_VALUE, "",
                                  "not a finloop config: expected a [scenario], [vessel], [controller], [envelope] or [links] table"))
@@ -480,9 +480,11 @@ def build_parser() -> argparse.ArgumentParser:
     v.add_argument("--json", action="store_true", help="print the result as JSON")
     v.set_defaults(func=cmd_validate)
 
+    from .cmd_hil import register as _register_hil
     from .cmd_tune import register as _register_tune
 
     _register_tune(sub)
+    _register_hil(sub)
     return p
 
 

@@ -26,12 +26,19 @@ Design speed-scheduled stabiliser gains for VESSEL.toml from a linear model of t
 (hull + fins + servo lag and delay + the controller's own filters), starting from the controller
 file given with --base.
 
-At each speed the gain SHAPE of the base controller (roll : roll rate : roll acceleration) is
-kept and one factor is found that gives the dominant closed-loop roll motion the target damping
-ratio. The factor is held back, and the speed reported as LIMITED, when the fins would run out of
-angle or rate in the design sea (peak factor x RMS beyond the limit), or when gain margin, phase
-margin or peak sensitivity would fall short. The factors are written as a gain table
-(schedule rule "table") in a copy of the base file; nothing else in it changes.
+Two objectives (--objective):
+  damping         (default) the gain SHAPE of the base controller (roll : roll rate : roll
+                  acceleration) is kept and one factor per speed gives the dominant closed-loop roll
+                  motion the target damping ratio.
+  roll-reduction  the three gains are chosen to give the largest predicted roll reduction in the
+                  design sea: first the shape at the reference speed, then one factor per speed on
+                  that shape (the file holds one gain table for all three gains). For comparison the
+                  best gains with a shape of each speed's own are listed too.
+Either way a gain is held back, and the speed reported as LIMITED (damping) or the binding limits
+named (roll-reduction), when the fin demand would run out of angle or rate in the design sea
+(peak factor x RMS beyond the limit; sensor noise included when known), or when gain margin,
+phase margin, peak sensitivity or the crossover frequency would fall short. The factors are
+written as a gain table (schedule rule "table") in a copy of the base file; nothing else changes.
 
 Columns of the table:
   factor    gain multiplier at that speed relative to the written gains (1 at the reference speed)
@@ -43,14 +50,18 @@ Columns of the table:
             (1 = never; 2 is a common upper bound)
   roll off/on  predicted RMS roll without / with the stabiliser in the design sea, deg
   RR        roll reduction 1 - RMS on / RMS off
-  fin, rate predicted RMS fin angle (deg) and fin rate (deg/s); compare peak factor x these with
-            the limits
+  fin, rate predicted RMS fin angle (deg) and fin rate (deg/s) as the servo moves the fin
+  d.rate    predicted RMS rate of the fin demand (deg/s), the figure checked against the rate
+            limit: peak factor x d.rate <= limit (sensor noise, differentiated by the
+            acceleration term, can be a large part of it)
 The predictions are linear: they ignore stall and saturation and assume 100 % gain trim."""
 
 _EPILOG = """\
 example:
   finloop tune configs/vessels/demo_pax_135.toml --base configs/controller/demo_pax_135.toml \\
       --hs-m 3 --tp-s 9.5 --heading-deg 90 --out my_tuned.toml
+  finloop tune configs/vessels/demo_pax_135.toml --base configs/controller/demo_pax_135.toml \\
+      --objective roll-reduction --scenario configs/scenarios/beam_sea_service_speed.toml
 
 tune moves no fins: prove tuned gains on the simulator and on the bench before any sea trial."""
 
@@ -85,6 +96,9 @@ def register(subparsers, common=None) -> argparse.ArgumentParser:
     t.add_argument("vessel", metavar="VESSEL.toml", help="vessel file (hull, fins, actuators; see configs/vessels/)")
     t.add_argument("--base", required=True, metavar="CONTROLLER.toml",
                    help="controller file to start from: its gain shape, filters, limits and everything else are kept")
+    t.add_argument("--objective", choices=("damping", "roll-reduction"), default="damping",
+                   help="damping: keep the base gain shape, reach --target-damping (default); roll-reduction: "
+                        "choose roll, rate and acceleration gains for the largest predicted roll reduction")
     t.add_argument("--target-damping", type=_positive_float, default=0.3, metavar="ZETA",
                    help="closed-loop roll damping ratio to aim for, 0.05..0.9 (default 0.3: resonant roll "
                         "amplification 1/(2 zeta) of about 1.7 instead of about 10 for the passive ship)")
@@ -100,6 +114,10 @@ def register(subparsers, common=None) -> argparse.ArgumentParser:
                      help="wave heading, deg: 0 following, 90 beam from starboard, 180 head (default 90)")
     sea.add_argument("--scenario", default=None, metavar="SCENARIO.toml",
                      help="take the sea, the heading and the motion sensor latency from this scenario instead")
+    sea.add_argument("--roll-noise-deg", type=_positive_float, default=None,
+                     help="motion sensor roll noise, 1 sigma per sample, deg (default: from --scenario, else 0)")
+    sea.add_argument("--rate-noise-deg-s", type=_positive_float, default=None,
+                     help="motion sensor roll-rate noise, 1 sigma per sample, deg/s (default: from --scenario, else 0)")
     lim = t.add_argument_group("constraints")
     lim.add_argument("--peak-factor", type=_positive_float, default=3.0,
                      help="peak factor x RMS fin angle and rate must stay within the limits (default 3)")
@@ -179,6 +197,10 @@ def _sea(args):
                             "(pierson_moskowitz, ittc or jonswap)")
         m = sc.setup.sensors.motion
         sensor_delay = m.latency_s + 0.5 / m.sample_rate_hz
+        # noise of each delivered sample; quantisation as uniform noise of variance q²/12 (Widrow &
+        # Kollár, Quantization Noise, 2008, ch. 4)
+        noise = (math.hypot(m.noise_roll_rad, m.quantisation_roll_rad / math.sqrt(12.0)),
+                 math.hypot(m.noise_rate_rad_s, m.quantisation_rate_rad_s / math.sqrt(12.0)) if m.provides_rate else 0.0)
         heading_deg = math.degrees(sc.heading_rad)
         label = f"{sc.sea.kind} Hs {sc.sea.hs_m:g} m"
         for key, name in (("tp_s", "Tp"), ("t1_s", "T1"), ("tz_s", "Tz")):
@@ -187,7 +209,7 @@ def _sea(args):
         if getattr(spec, "gamma", None) is not None:
             label += f", gamma {spec.gamma:.2f}"
         label += f", heading {heading_deg:g} deg (from {args.scenario})"
-        return tune.SeaState(spec, sc.heading_rad, label), sensor_delay
+        return tune.SeaState(spec, sc.heading_rad, label), sensor_delay, noise
     hs = 3.0 if args.hs_m is None else args.hs_m
     tp = 9.5 if args.tp_s is None else args.tp_s
     heading = 90.0 if args.heading_deg is None else args.heading_deg
@@ -196,7 +218,7 @@ def _sea(args):
     _check_range("--heading-deg", heading, 0.0, 360.0, "deg")
     if args.gamma is not None:
         _check_range("--gamma", args.gamma, 1.0, 7.0)
-    return tune.SeaState.jonswap(hs, tp, heading, args.gamma), 0.0
+    return tune.SeaState.jonswap(hs, tp, heading, args.gamma), 0.0, (0.0, 0.0)
 
 
 def _sha256(path) -> str:
@@ -204,8 +226,12 @@ def _sha256(path) -> str:
 
 
 def _command_line(args, speeds) -> str:
-    parts = ["finloop tune", str(args.vessel), "--base", str(args.base), "--target-damping", f"{args.target_damping:g}",
-             "--speeds-kn", ",".join(f"{s:g}" for s in speeds)]
+    parts = ["finloop tune", str(args.vessel), "--base", str(args.base)]
+    if args.objective == "damping":
+        parts += ["--target-damping", f"{args.target_damping:g}"]
+    else:
+        parts += ["--objective", args.objective]
+    parts += ["--speeds-kn", ",".join(f"{s:g}" for s in speeds)]
     if args.scenario:
         parts += ["--scenario", str(args.scenario)]
     else:
@@ -213,6 +239,10 @@ def _command_line(args, speeds) -> str:
             v = getattr(args, opt)
             if v is not None:
                 parts += ["--" + opt.replace("_", "-"), f"{v:g}"]
+    for opt in ("roll_noise_deg", "rate_noise_deg_s"):
+        v = getattr(args, opt, None)
+        if v is not None:
+            parts += ["--" + opt.replace("_", "-"), f"{v:g}"]
     for opt, default in (("peak_factor", 3.0), ("min_gain_margin_db", 6.0), ("min_phase_margin_deg", 30.0),
                          ("max_sensitivity", 2.0)):
         v = getattr(args, opt)
@@ -235,19 +265,36 @@ def _fmt(x: float, spec: str) -> str:
 
 def _table(result) -> list[str]:
     head = (f"{'speed':>6} {'factor':>7} {'zeta':>6} {'wn':>6} {'GM':>6} {'PM':>6} {'|S|max':>6} "
-            f"{'roll off':>8} {'roll on':>8} {'RR':>5} {'fin':>6} {'rate':>6}  status")
+            f"{'roll off':>8} {'roll on':>8} {'RR':>5} {'fin':>6} {'rate':>6} {'d.rate':>6}  status")
     unit = (f"{'kn':>6} {'-':>7} {'-':>6} {'rad/s':>6} {'dB':>6} {'deg':>6} {'-':>6} "
-            f"{'deg':>8} {'deg':>8} {'%':>5} {'deg':>6} {'deg/s':>6}")
+            f"{'deg':>8} {'deg':>8} {'%':>5} {'deg':>6} {'deg/s':>6} {'deg/s':>6}")
     rows = [head, unit]
+    rr_mode = result.options.objective == "roll-reduction"
     for d, r in zip(result.designs, result.reports):
         status = "ok" if not d.limited_by else "LIMITED: " + ", ".join(d.limited_by)
-        if d.target_factor == 0.0:
+        if rr_mode:
+            status = "binding: " + (", ".join(d.limited_by) or "none")
+        elif d.target_factor == 0.0:
             status = "passive damping meets target"
         rows.append(
             f"{r.speed_kn:6.1f} {r.factor:7.4f} {r.zeta:6.3f} {r.omega_n_rad_s:6.3f} {_fmt(r.gain_margin_db, '6.1f'):>6} "
             f"{_fmt(r.phase_margin_deg, '6.1f'):>6} {r.max_sensitivity:6.3f} {r.roll_rms_off_deg:8.2f} "
-            f"{r.roll_rms_on_deg:8.2f} {100 * r.roll_reduction:5.1f} {r.fin_rms_deg:6.2f} {r.fin_rate_rms_deg_s:6.2f}  {status}"
+            f"{r.roll_rms_on_deg:8.2f} {100 * r.roll_reduction:5.1f} {r.fin_rms_deg:6.2f} {r.fin_rate_rms_deg_s:6.2f} "
+            f"{r.command_rate_rms_deg_s:6.2f}  {status}"
         )
+    return rows
+
+
+def _shape_table(result) -> list[str]:
+    """Roll-reduction objective: gains per speed with the common shape vs a shape of its own."""
+    rows = [f"{'speed':>6} {'K_roll':>7} {'K_rate':>7} {'K_accel':>7} {'RR':>5}   {'own shape:':>10} {'K_roll':>7} "
+            f"{'K_rate':>7} {'K_accel':>7} {'RR':>5} {'loss':>5}",
+            f"{'kn':>6} {'-':>7} {'s':>7} {'s2':>7} {'%':>5}   {'':>10} {'-':>7} {'s':>7} {'s2':>7} {'%':>5} {'%pt':>5}"]
+    for d, r in zip(result.designs, result.reports):
+        loss = 100 * (d.free_roll_reduction - r.roll_reduction)
+        rows.append(f"{r.speed_kn:6.1f} {r.k_roll:7.3f} {r.k_rate_s:7.3f} {r.k_accel_s2:7.3f} {100 * r.roll_reduction:5.1f}   "
+                    f"{'':>10} {d.free_gains[0]:7.3f} {d.free_gains[1]:7.3f} {d.free_gains[2]:7.3f} "
+                    f"{100 * d.free_roll_reduction:5.1f} {loss:5.1f}")
     return rows
 
 
@@ -259,8 +306,13 @@ def _header(args, result, command: str, vessel_name: str) -> str:
         f"# base controller: {args.base} (sha256 {_sha256(args.base)[:16]}…)",
         f"# vessel: {args.vessel} — {vessel_name} (sha256 {_sha256(args.vessel)[:16]}…)",
         f"# design sea: {result.sea.label}",
-        f"# target closed-loop roll damping ratio {o.target_damping:g}; constraints: {o.peak_factor:g} x RMS fin angle/rate "
-        f"within limits, GM >= {o.min_gain_margin_db:g} dB, PM >= {o.min_phase_margin_deg:g} deg, |S|max <= {o.max_sensitivity:g}",
+        (f"# objective: damping — base gain shape kept, target closed-loop roll damping ratio {o.target_damping:g}"
+         if o.objective == "damping" else
+         "# objective: roll-reduction — gains (shape at the reference speed, one factor per speed) chosen for the "
+         "largest predicted roll reduction in the design sea"),
+        f"# constraints: {o.peak_factor:g} x RMS fin demand angle/rate within limits, GM >= {o.min_gain_margin_db:g} dB, "
+        f"PM >= {o.min_phase_margin_deg:g} deg, |S|max <= {o.max_sensitivity:g}; sensor noise roll "
+        f"{math.degrees(o.roll_noise_rad):.3g} deg, rate {math.degrees(o.rate_noise_rad_s):.3g} deg/s (1 sigma per sample)",
         f"# linear loop: loop delay {result.delay_s:.3f} s (Padé order {o.pade_order}), heel trim "
         f"{'in' if o.heel_trim else 'not in'} the loop, gain trim 100 %",
         "# Only [controller.gains] roll / roll_rate_s / roll_accel_s2 and [controller.schedule] differ from the base;",
@@ -269,6 +321,9 @@ def _header(args, result, command: str, vessel_name: str) -> str:
         "# Predicted per speed (linear model; stall and saturation ignored):",
     ]
     lines += ["# " + row for row in _table(result)]
+    if o.objective == "roll-reduction":
+        lines += ["#", "# Gains per speed (common shape) and the best gains with a shape of that speed's own:"]
+        lines += ["# " + row for row in _shape_table(result)]
     lines += ["#", "# Prove these gains on the simulator and on the bench before any sea trial.", ""]
     return "\n".join(lines)
 
@@ -298,15 +353,22 @@ def _run(args) -> int:
     base = load_controller(args.base, problems)
     warnings = [str(p) for p in problems.warnings]
     speeds = _speeds(args, base)
-    sea, sensor_delay = _sea(args)
+    sea, sensor_delay, noise = _sea(args)
+    if args.roll_noise_deg is not None:
+        _check_range("--roll-noise-deg", args.roll_noise_deg, 0.0, 1.0, "deg")
+        noise = (math.radians(args.roll_noise_deg), noise[1])
+    if args.rate_noise_deg_s is not None:
+        _check_range("--rate-noise-deg-s", args.rate_noise_deg_s, 0.0, 5.0, "deg/s")
+        noise = (noise[0], math.radians(args.rate_noise_deg_s))
     options = tune.DesignOptions(
         target_damping=args.target_damping, peak_factor=args.peak_factor,
         min_gain_margin_db=args.min_gain_margin_db, min_phase_margin_deg=args.min_phase_margin_deg,
         max_sensitivity=args.max_sensitivity, heel_trim=args.heel_trim, sensor_delay_s=sensor_delay,
+        objective=args.objective, roll_noise_rad=noise[0], rate_noise_rad_s=noise[1],
     )  # fmt: skip
     result = tune.design(vessel, base, speeds, sea, options)
     for d in result.designs:
-        if d.limited_by or not math.isfinite(d.target_factor):
+        if args.objective == "damping" and (d.limited_by or not math.isfinite(d.target_factor)):
             warnings.append(f"warning: {d.speed_kn:g} kn: {d.note}")
     command = _command_line(args, speeds)
     written = None
@@ -337,10 +399,14 @@ def _run(args) -> int:
             "reference_speed_kn": ref_kn,
             "gains": {"roll": result.gains[0], "roll_rate_s": result.gains[1], "roll_accel_s2": result.gains[2]},
             "schedule": {"rule": "table", "speeds_kn": list(result.speeds_kn), "factors": list(result.factors)},
+            "objective": args.objective,
             "speeds": [
                 {**r.as_dict(), "target_met": not d.limited_by and math.isfinite(d.target_factor),
                  "limited_by": list(d.limited_by), "note": d.note,
-                 "design_factor_on_base_gains": d.factor, "target_factor_on_base_gains": d.target_factor}
+                 "design_factor_on_base_gains": d.factor, "target_factor_on_base_gains": d.target_factor,
+                 **({"own_shape_gains": {"roll": d.free_gains[0], "roll_rate_s": d.free_gains[1],
+                                         "roll_accel_s2": d.free_gains[2]},
+                     "own_shape_roll_reduction": d.free_roll_reduction} if d.free_gains else {})}
                 for d, r in zip(result.designs, result.reports)
             ],
             "out": written,
@@ -353,12 +419,16 @@ def _run(args) -> int:
     lines = [
         f"finloop tune — {vessel.params.name}, base {args.base}",
         f"design sea: {result.sea.label}",
-        f"target roll damping ratio {o.target_damping:g}; limits: {o.peak_factor:g} x RMS fin angle and rate, "
+        (f"target roll damping ratio {o.target_damping:g}" if o.objective == "damping"
+         else "objective: largest predicted roll reduction (gain shape chosen at the reference speed)")
+        + f"; limits: {o.peak_factor:g} x RMS fin demand angle and rate, "
         f"GM >= {o.min_gain_margin_db:g} dB, PM >= {o.min_phase_margin_deg:g} deg, |S|max <= {o.max_sensitivity:g}; "
         f"loop delay {result.delay_s:.3f} s",
         "",
         *_table(result),
         "",
+        *((["gains per speed (common shape) and with a shape of each speed's own:", *_shape_table(result), ""])
+          if o.objective == "roll-reduction" else []),
         f"gains at the reference speed {ref_kn:g} kn: roll {result.gains[0]:g} deg/deg, roll_rate_s {result.gains[1]:g} s, "
         f"roll_accel_s2 {result.gains[2]:g} s2",
         f"written: {written}" if written else "no file written (give --out FILE.toml to write one)",

@@ -14,9 +14,12 @@ Input rules (the runner's only judgement; everything else is the controller's):
 - fin feedback (per fin): the latest FIN_FEEDBACK frame that decoded cleanly (CRC, ranges); valid
   when its VALID status bit is set, it is at most ``feedback_timeout_s`` old, and its alive counter
   has not repeated twice in a row (a sender whose task stopped).
-- mode requests: with ``engage`` the runner asks for ACTIVE while the controller is in STANDBY
-  and has never been in FAULT (after a fault only an operator may re-engage: a new run). On
-  shutdown it asks for OFF; the demand then ramps to centre at the rate limit.
+- mode requests (the power-up sequence): the controller starts OFF (no fault latches in OFF, so a
+  rig that is still starting up is not a fault). Once roll, roll rate, speed and both fin feedbacks
+  have all been valid in one step the runner asks for STANDBY (monitoring: faults latch from now
+  on), then, with ``engage``, for ACTIVE. After a FAULT it asks for nothing more (only an operator
+  may re-engage: a new run). On shutdown it asks for STANDBY (fins ramp to centre at the rate
+  limit) and then OFF.
 """
 
 from __future__ import annotations
@@ -83,7 +86,7 @@ class RunnerCore:
         self.feedback_timeout_s = feedback_timeout_s
         self.injections = tuple(i for i in injections if i.side == "runner")
         self.status_every = max(1, status_every)
-        self.state = initial_state(params, mode=Mode.STANDBY)
+        self.state = initial_state(params, mode=Mode.OFF)
         self.k = 0
         self.t0: float | None = None
         self.parsers = {"motion": SensorStreamParser(), "speed": SensorStreamParser()}
@@ -139,9 +142,15 @@ class RunnerCore:
         mode = int(self.state.mode)
         req = 0
         if self.shutdown:
-            req = int(ModeRequest.OFF) if mode != Mode.OFF else 0
-        elif self.engage and not self.ever_faulted and mode == Mode.STANDBY:
-            req = int(ModeRequest.ACTIVE)
+            if mode in (Mode.ACTIVE, Mode.CUTOUT, Mode.BENCH):
+                req = int(ModeRequest.STANDBY)
+            elif mode in (Mode.STANDBY, Mode.FAULT):
+                req = int(ModeRequest.OFF)
+        elif not self.ever_faulted:
+            if mode == Mode.OFF and lr.valid and lp.valid and ls.valid and fp_ok and fs_ok:
+                req = int(ModeRequest.STANDBY)
+            elif mode == Mode.STANDBY and self.engage:
+                req = int(ModeRequest.ACTIVE)
         return ControllerInputs(
             lr.value, lr.valid, now - lr.t_rx, lp.value, lp.valid, now - lp.t_rx, ls.value, ls.valid, now - ls.t_rx,
             fp, fp_ok, fs, fs_ok, req, 100.0, False, False, 0.0, bool(overrun),
@@ -192,7 +201,7 @@ class RunnerCore:
     def centred(self) -> bool:
         """Demands at centre and the controller OFF/STANDBY/FAULT (safe to close the links)."""
         out = self.last_out
-        return out is not None and out.fin_port == 0.0 and out.fin_stbd == 0.0 and out.mode in (Mode.OFF, Mode.STANDBY, Mode.FAULT)
+        return out is not None and out.fin_port == 0.0 and out.fin_stbd == 0.0 and out.mode in (Mode.OFF, Mode.FAULT)
 
     def summary(self) -> dict:
         return {
@@ -204,7 +213,7 @@ class RunnerCore:
         }
 
 
-def replay_inputs(params: ControllerParams, rows, start_mode: Mode = Mode.STANDBY,
+def replay_inputs(params: ControllerParams, rows, start_mode: Mode = Mode.OFF,
                   speed: float | None = None) -> list[ControllerOutputs]:
     """Feed recorded input rows (INPUT_COLUMNS order, SI) through the law from ``initial_state``
     (power-up in ``start_mode``; ``speed`` pre-loads the speed filter as a simulation does)."""

@@ -76,6 +76,13 @@ __all__ = [
     "usable_angle_rad",
     "analyse_controller",
     "design_speed",
+    "GainEval",
+    "GainLoop",
+    "optimise_gains",
+    "design_speed_rr",
+    "design_rr",
+    "noise_rms",
+    "OBJECTIVES",
     "design",
     "tuned_params",
     "tuned_document",
@@ -107,6 +114,15 @@ class DesignOptions:
     pade_order: order of the Padé approximant of the loop delay.
     sensor_delay_s: motion sensor latency + half its sample period (0 when unknown).
     max_factor: largest factor on the base gains the search tries (the schedule table's own bound).
+    objective: ``"damping"`` (keep the base gain shape, reach ``target_damping``) or
+        ``"roll-reduction"`` (choose K_φ, K_p, K_a ≥ 0 to maximise the predicted roll reduction in the
+        design sea under the same constraints; see :func:`design_speed_rr`).
+    roll_noise_rad, rate_noise_rad_s: motion-sensor noise, 1σ of each sample the controller receives
+        (quantisation folded in as q²/12). The controller passes it to the fin demand; the predicted
+        fin angle and rate (and the constraints on them) include that part. 0 = noise-free sensor.
+    max_added: bounds of the roll-reduction search in physical terms at each speed — the added
+        stiffness K_φ K_f / C, the added damping ratio K_p K_f / (2√(C I)) and the added inertia
+        K_a K_f / I (K_f the fin moment per rad, C, I the hull restoring and inertia).
     """
 
     target_damping: float = 0.3
@@ -121,6 +137,10 @@ class DesignOptions:
     pade_order: int = 3
     sensor_delay_s: float = 0.0
     max_factor: float = 100.0
+    objective: str = "damping"
+    roll_noise_rad: float = 0.0
+    rate_noise_rad_s: float = 0.0
+    max_added: tuple[float, float, float] = (1.0, 2.0, 2.0)
 
 
 @dataclass(frozen=True)
@@ -385,6 +405,11 @@ def response_rms(loop: LoopAtSpeed, factor: float | None, we: np.ndarray, weight
 
 def _stochastic_rms(loop: LoopAtSpeed, vessel, factor, we, weights):
     """RMS with the quadratic damping statistically linearised: B = B1 + √(8/π) σ_p B2 (fixed point)."""
+    return _stochastic_rms_loop(loop, vessel, factor, we, weights)[0]
+
+
+def _stochastic_rms_loop(loop: LoopAtSpeed, vessel, factor, we, weights):
+    """(:func:`response_rms` at the fixed point, the loop with the converged damping)."""
     b1, b2 = vessel.params.b1_n_m_s, vessel.params.b2_n_m_s2
     lp = loop.with_damping(b1)
     out = response_rms(lp, factor, we, weights)
@@ -395,7 +420,81 @@ def _stochastic_rms(loop: LoopAtSpeed, vessel, factor, we, weights):
         out = new
         if done:
             break
-    return out
+    return out, lp
+
+
+_N_NOISE = 2000
+
+
+def _noise_theta(dt: float):
+    """Midpoint grid of θ = ωT in (0, π) and the analogue frequencies ω_a = (2/T)·tan(θ/2) at which the
+    continuous equivalents of the controller's bilinear filters equal the discrete ones."""
+    th = (np.arange(_N_NOISE) + 0.5) * (math.pi / _N_NOISE)
+    return th, 2.0 / dt * np.tan(0.5 * th)
+
+
+def _noise_paths(params: ControllerParams, heel_trim: bool):
+    """(H_φ, H_p) at unit gains per basis: the controller paths from roll-sensor noise and from
+    rate-sensor noise to the demand, as lists of (num, den) matching (K_φ, K_p, K_a, heel)."""
+    cr, cp, ca, ch = _controller_basis(params, heel_trim)
+    if params.rate_source == "derivative":  # the rate is derived from the noisy roll signal
+        return [cr, cp, ca, ch], [None, None, None, None]
+    # the sensor's rate goes through the same conditioning; the accel path differentiates it
+    inv_s = (np.ones(1), np.array([1.0, 0.0]))
+    return [cr, None, None, ch], [None, _mul(cp, inv_s), _mul(ca, inv_s), None]
+
+
+def noise_rms(loop: LoopAtSpeed, gains, options: DesignOptions) -> tuple[float, float, float, float]:
+    """RMS (demand, demand rate, fin, fin rate) from motion-sensor noise, rad and rad/s.
+
+    The controller receives white noise (one independent sample per control period, σ from
+    ``options``) on roll and, with ``rate_source = "sensor"``, on roll rate. Its filters are bilinear
+    designs, so at θ = ωT the discrete response equals the continuous equivalent at ω_a = (2/T)·tan(θ/2)
+    (Oppenheim & Schafer, 3rd ed., §7.2). σ² = σ_n²·(1/π)∫₀^π |H(θ)|² dθ for white discrete noise;
+    the demand rate per control period multiplies by |1 − e^{−jθ}|/T; the loop closes through
+    S = 1/(1 + L(jω_a)); the fin follows through the servo lag 1/(1 + jωτ) at ω = θ/T. The roll motion
+    the noise causes is neglected (the ship hardly responds above 2 rad/s). ``gains`` = (K_φ, K_p, K_a)
+    in SI (the heel-trim part, when in the loop, enters with weight 1).
+    """
+    sr, sp = float(options.roll_noise_rad), float(options.rate_noise_rad_s)
+    if sr == 0.0 and sp == 0.0:
+        return 0.0, 0.0, 0.0, 0.0
+    p = loop.params
+    th, wa = _noise_theta(p.dt)
+    hf, hp = _noise_paths(p, options.heel_trim)
+    k = (gains[0], gains[1], gains[2], 1.0)
+    c_all = sum(ki * _freq(b, wa) for ki, b in zip(k, _controller_basis(p, options.heel_trim)) if b is not None)
+    sens = 1.0 / (1.0 + c_all * _freq(loop.actuator, wa) * _freq(loop.plant, wa))
+    var = np.zeros(th.size)
+    for paths, sig in ((hf, sr), (hp, sp)):
+        if sig == 0.0 or all(b is None for b in paths):
+            continue
+        h = sum(ki * _freq(b, wa) for ki, b in zip(k, paths) if b is not None)
+        var = var + sig * sig * np.abs(h * sens) ** 2
+    diff2 = (2.0 * np.sin(0.5 * th) / p.dt) ** 2
+    lag2 = 1.0 / (1.0 + (loop.tau_s * th / p.dt) ** 2)
+    m = lambda x: float(math.sqrt(max(0.0, float(np.mean(x)))))  # noqa: E731  (1/π)∫₀^π on midpoints
+    return m(var), m(var * diff2), m(var * lag2), m(var * lag2 * diff2)
+
+
+def _controller_basis(params: ControllerParams, heel_trim: bool):
+    """(C_φ, C_p, C_a, C_h): the controller φ → δ_cmd per unit K_φ, K_p, K_a, and the heel-trim part
+    (None when not in the loop), each (num, den) in descending powers of s."""
+    dt = params.dt
+    lb0, lb1, lb2, la1, la2 = params.lowpass
+    lp = inverse_tustin((lb0, lb1, lb2), (1.0, la1, la2), dt)
+    nb0, nb1, nb2, na1, na2 = params.notch_coef
+    nt = inverse_tustin((nb0, nb1, nb2), (1.0, na1, na2), dt) if params.notch_hz > 0 else (np.ones(1), np.ones(1))
+    d_a = inverse_tustin((params.accel_coef[0], params.accel_coef[1]), (1.0, params.accel_coef[2]), dt)
+    cond = _mul(nt, lp)
+    if params.rate_source == "derivative":
+        rate = inverse_tustin((params.deriv_coef[0], params.deriv_coef[1]), (1.0, params.deriv_coef[2]), dt)
+    else:
+        rate = (np.array([1.0, 0.0]), np.ones(1))
+    c_h = None
+    if heel_trim and params.heel_gain != 0.0:
+        c_h = _mul(cond, (np.array([params.heel_gain]), np.array([params.heel_tau, 1.0, 0.0])))
+    return cond, _mul(cond, rate), _mul(cond, rate, d_a), c_h
 
 
 @dataclass(frozen=True)
@@ -403,9 +502,12 @@ class SpeedReport:
     """Linear-loop results at one speed (trade units at this edge; names carry them).
 
     factor: total multiplier on the base gains (s(U)·trim); zeta, omega_n_rad_s: dominant pair;
-    gain_margin_db (inf when the phase never crosses −180°), phase_margin_deg and their crossover
-    frequencies; max_sensitivity |S|max and its frequency; roll RMS off/on, RR = 1 − σ_on/σ_off; fin
-    angle and rate RMS; the usable limits they were checked against.
+    gain_margin_db (inf when the phase never crosses −180°), phase_margin_deg (distance of L from −1
+    at the gain crossover, see :func:`_margins`) and their crossover frequencies; max_sensitivity
+    |S|max and its frequency; roll RMS off/on, RR = 1 − σ_on/σ_off; fin angle and rate RMS (the fin
+    as the servo moves it); command (demand) angle and rate RMS, which the constraints check; the
+    part of the demand rate due to sensor noise; the usable limits; the gains K_φ (rad/rad),
+    K_p (s), K_a (s²) in force at that speed.
     """
 
     speed_kn: float
@@ -428,6 +530,12 @@ class SpeedReport:
     rate_limit_deg_s: float
     bandwidth_limit_rad_s: float
     stable: bool
+    command_rms_deg: float = math.nan
+    command_rate_rms_deg_s: float = math.nan
+    noise_command_rate_rms_deg_s: float = 0.0
+    k_roll: float = math.nan
+    k_rate_s: float = math.nan
+    k_accel_s2: float = math.nan
 
     def as_dict(self) -> dict:
         return {k: getattr(self, k) for k in self.__dataclass_fields__}
@@ -440,13 +548,35 @@ def usable_angle_rad(params: ControllerParams, actuator, speed_ms: float) -> flo
 
 
 def _margins(loop: LoopAtSpeed, factor: float):
+    """(gain margin dB, its frequency, phase margin deg, its frequency) over *every* crossing.
+
+    Gain margin: the smallest 20·log10(gm) over the phase crossovers python-control finds (negative
+    when |L| > 1 there). Phase margin: the smallest angular distance of L(jω_gc) from the −1 point,
+    |wrap(180° + ∠L)| — python-control reports 180° + ∠L with ∠L taken in (−360°, 0°], which gives
+    about −94° for a crossing at ∠L = +86° (a loop whose gain crossing lies on the rising,
+    positive-phase side, as with roll-acceleration feedback); the distance from −1 is then 94°.
+    A loop that is unstable is reported by its poles, not by these numbers.
+    """
     import control
 
     if factor == 0.0 and loop.c_heel is None:  # no feedback at all: nothing to cross
         return math.inf, math.nan, math.inf, math.nan
-    gm, pm, _sm, wpc, wgc, _wms = control.stability_margins(loop.loop_ss(factor))
-    gm_db = 20.0 * math.log10(gm) if gm is not None and np.isfinite(gm) and gm > 0 else math.inf
-    return gm_db, float(wpc), float(pm), float(wgc)
+    gm, pm, _sm, wpc, wgc, _wms = control.stability_margins(loop.loop_ss(factor), returnall=True)
+    gm, pm, wpc, wgc = (np.atleast_1d(np.asarray(x, dtype=float)) for x in (gm, pm, wpc, wgc))
+    ok = np.isfinite(gm) & (gm > 0)
+    if np.any(ok):
+        db = 20.0 * np.log10(gm[ok])
+        k = int(np.argmin(db))
+        gm_db, w_pc = float(db[k]), float(wpc[ok][k])
+    else:
+        gm_db, w_pc = math.inf, math.nan
+    if pm.size:
+        dist = np.abs(np.mod(pm + 180.0, 360.0) - 180.0)
+        k = int(np.argmin(dist))
+        pm_deg, w_gc = float(dist[k]), float(wgc[k])
+    else:
+        pm_deg, w_gc = math.inf, math.nan
+    return gm_db, w_pc, pm_deg, w_gc
 
 
 def _max_sensitivity(loop: LoopAtSpeed, factor: float) -> tuple[float, float]:
@@ -477,10 +607,11 @@ def analyse(loop: LoopAtSpeed, vessel, factor: float, sea: SeaState, options: De
     ms, wms = _max_sensitivity(loop, factor)
     we, weights = wave_grid(sea, vessel, u)
     off = _stochastic_rms(loop, vessel, None, we, weights)
-    on = _stochastic_rms(loop, vessel, factor, we, weights)
+    on, cmd, noise = _fin_rms(loop, vessel, factor, we, weights, options)
     p = loop.params
     act = vessel.actuator_stbd
     rr = 1.0 - on[0] / off[0] if off[0] > 0 else math.nan
+    gains = _effective_gains(loop, factor)
     return SpeedReport(
         speed_kn=u / KNOT, factor=factor, passive_zeta=zeta0, zeta=zeta, omega_n_rad_s=wn,
         gain_margin_db=gm_db, phase_crossover_rad_s=wpc, phase_margin_deg=pm, gain_crossover_rad_s=wgc,
@@ -491,7 +622,29 @@ def analyse(loop: LoopAtSpeed, vessel, factor: float, sea: SeaState, options: De
         rate_limit_deg_s=math.degrees(min(p.rate_limit, act.rate_limit_rad_s)),
         bandwidth_limit_rad_s=options.bandwidth_fraction / (loop.tau_s + loop.delay_s),
         stable=stable,
+        command_rms_deg=math.degrees(cmd[0]), command_rate_rms_deg_s=math.degrees(cmd[1]),
+        noise_command_rate_rms_deg_s=math.degrees(noise[1]),
+        k_roll=gains[0], k_rate_s=gains[1], k_accel_s2=gains[2],
     )  # fmt: skip
+
+
+def _effective_gains(loop: LoopAtSpeed, factor: float) -> tuple[float, float, float]:
+    p = loop.params
+    return factor * p.k_roll, factor * p.k_rate, factor * p.k_accel
+
+
+def _fin_rms(loop: LoopAtSpeed, vessel, factor: float, we, weights, options: DesignOptions):
+    """(on, command, noise): ``on`` = (σ_φ, σ_p, σ_fin, σ_fin-rate) with the sensor-noise part of the
+    fin added in quadrature; ``command`` = (σ_δcmd, σ_δcmd-rate), waves + noise; ``noise`` the noise
+    parts alone (:func:`noise_rms`). rad, rad/s."""
+    on, lp = _stochastic_rms_loop(loop, vessel, factor, we, weights)
+    phi = _freq((np.ones(1) / lp.lin.inertia_kg_m2, lp.plant[1]), we) / (1.0 + _freq(lp.loop(factor), we))
+    c = _freq(lp.controller(factor), we) * phi
+    wave_cmd = (float(np.sqrt(np.sum(np.abs(c) ** 2 * weights))), float(np.sqrt(np.sum(np.abs(c * we) ** 2 * weights))))
+    noise = noise_rms(loop, _effective_gains(loop, factor), options)
+    q = lambda a, b: math.hypot(a, b)  # noqa: E731  independent parts add in power
+    on = (on[0], on[1], q(on[2], noise[2]), q(on[3], noise[3]))
+    return on, (q(wave_cmd[0], noise[0]), q(wave_cmd[1], noise[1])), noise
 
 
 def analyse_controller(vessel, params: ControllerParams, speeds_ms, sea: SeaState,
@@ -515,10 +668,16 @@ LIMITS = ("fin angle", "fin rate", "gain margin", "phase margin", "sensitivity",
 class SpeedDesign:
     """The factor chosen at one speed and why.
 
-    target_factor: factor that gives the target damping (nan when no factor ≤ max_factor does).
-    factor: the factor used (= target_factor unless a constraint caps it).
-    limited_by: names of the constraints that cap it (empty when the target is met).
+    target_factor: factor that gives the target damping (nan when no factor ≤ max_factor does; nan
+        for the roll-reduction objective).
+    factor: the factor used (= target_factor unless a constraint caps it); for the roll-reduction
+        objective the factor on the common gain shape.
+    limited_by: names of the constraints that cap it (empty when the target is met); for the
+        roll-reduction objective the constraints within 2 % of their limit at the optimum.
     note: one line for a person.
+    gains: roll-reduction objective: (K_φ rad/rad, K_p s, K_a s²) at this speed with the common shape;
+        roll_reduction: their predicted RR (design model). free_gains / free_roll_reduction: the best
+        gains with a shape of this speed's own, and their RR (what a per-gain schedule could give).
     """
 
     speed_kn: float
@@ -526,6 +685,10 @@ class SpeedDesign:
     factor: float
     limited_by: tuple[str, ...]
     note: str
+    gains: tuple[float, ...] = ()
+    roll_reduction: float = math.nan
+    free_gains: tuple[float, ...] = ()
+    free_roll_reduction: float = math.nan
 
 
 def _violations(loop: LoopAtSpeed, vessel, f: float, opts: DesignOptions, we, weights) -> tuple[str, ...]:
@@ -536,10 +699,10 @@ def _violations(loop: LoopAtSpeed, vessel, f: float, opts: DesignOptions, we, we
     u = loop.lin.speed_ms
     p = loop.params
     act = vessel.actuator_stbd
-    rms = _stochastic_rms(loop, vessel, f, we, weights)
-    if opts.peak_factor * rms[2] > usable_angle_rad(p, act, u):
+    _on, cmd, _noise = _fin_rms(loop, vessel, f, we, weights, opts)
+    if opts.peak_factor * cmd[0] > usable_angle_rad(p, act, u):
         bad.append("fin angle")
-    if opts.peak_factor * rms[3] > min(p.rate_limit, act.rate_limit_rad_s):
+    if opts.peak_factor * cmd[1] > min(p.rate_limit, act.rate_limit_rad_s):
         bad.append("fin rate")
     if f > 0.0:
         gm_db, _wpc, pm, wgc = _margins(loop, f)
@@ -611,6 +774,307 @@ def design_speed(vessel, base: ControllerParams, speed_ms: float, sea: SeaState,
     return SpeedDesign(kn_, f_target, float(lo), tuple(x for x in LIMITS if x in limited), note)
 
 
+# ----------------------------------------------------------------------------------------------
+# roll-reduction design: the gain shape is chosen too
+# ----------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class GainEval:
+    """One candidate (K_φ, K_p, K_a) at one speed, from :class:`GainLoop` (SI; RMS in rad, rad/s).
+
+    ``ratio`` = σ_φ,on/σ_φ,off (1 − RR); ``slack``: one entry per constraint, ≥ 0 when it is met
+    (relative distance to its limit), in the order of ``GainLoop.CONSTRAINTS``.
+    """
+
+    gains: tuple[float, float, float]
+    ratio: float
+    roll_on: float
+    command: tuple[float, float]
+    slack: tuple[float, ...]
+
+    @property
+    def feasible(self) -> bool:
+        return all(x >= 0.0 for x in self.slack)
+
+    @property
+    def roll_reduction(self) -> float:
+        return 1.0 - self.ratio
+
+
+class GainLoop:
+    """The linear loop at one speed with K_φ, K_p, K_a free — a fast evaluator for the optimiser.
+
+    Everything is precomputed once per speed: the frequency responses of the controller's basis
+    paths (:func:`_controller_basis`), the servo and delay on the wave grid, on a log grid for the
+    margins and on the noise grid, and a state-space form whose closed-loop A matrix is affine in the
+    gains (A_cl = A_0 + Σ K_i M_i), so the poles of a candidate are one 20×20 eigenvalue problem.
+    The RMS figures are the same computation as :func:`analyse` (statistical linearisation, noise);
+    the margins are read from a 4000-point log grid (0.01–300 rad/s) instead of python-control's
+    exact crossings — the design found is re-checked with :func:`_violations` afterwards.
+
+    ``scale`` (SI per unit): K_φ = x₀·C/K_f, K_p = x₁·2√(CI)/K_f, K_a = x₂·I/K_f — added stiffness
+    fraction, added damping ratio, added inertia fraction.
+    """
+
+    CONSTRAINTS = ("stability", "gain margin", "phase margin", "sensitivity", "bandwidth", "fin angle", "fin rate")
+
+    def __init__(self, vessel, params: ControllerParams, speed_ms: float, sea: SeaState,
+                 options: DesignOptions = DesignOptions()):
+        import control
+
+        self.vessel, self.options = vessel, options
+        base = replace(params, k_roll=1.0, k_rate=0.0, k_accel=0.0)
+        self.loop = loop = build_loop(vessel, base, speed_ms, options)
+        self.params = params
+        lin = loop.lin
+        self.kf, self.inertia, self.c = lin.fin_moment_per_rad, lin.inertia_kg_m2, lin.restoring_n_m_per_rad
+        self.b_fin = lin.total_damping_n_m_s - lin.damping_n_m_s
+        self.scale = np.array([self.c / self.kf, 2.0 * math.sqrt(self.c * self.inertia) / self.kf, self.inertia / self.kf])
+        basis = _controller_basis(params, options.heel_trim)
+        self.has_heel = basis[3] is not None
+        # wave grid
+        self.we, self.weights = wave_grid(sea, vessel, speed_ms)
+        self.cw = [_freq(b, self.we) if b is not None else 0.0 for b in basis]
+        self.aw = _freq(loop.actuator, self.we)
+        off = _stochastic_rms(loop, vessel, None, self.we, self.weights)
+        self.roll_off = off[0]
+        # margin grid
+        self.wm = np.geomspace(1e-2, 3e2, 4000)
+        pa = _freq(loop.actuator, self.wm) * _freq(loop.plant, self.wm)
+        self.lm = [(_freq(b, self.wm) * pa if b is not None else 0.0) for b in basis]
+        # noise grid
+        th, wa = _noise_theta(params.dt)
+        self.th = th
+        self.pa_n = _freq(loop.actuator, wa) * _freq(loop.plant, wa)
+        self.cn = [_freq(b, wa) if b is not None else 0.0 for b in basis]
+        hf, hp = _noise_paths(params, options.heel_trim)
+        self.hf = [_freq(b, wa) if b is not None else 0.0 for b in hf]
+        self.hp = [_freq(b, wa) if b is not None else 0.0 for b in hp]
+        self.diff2 = (2.0 * np.sin(0.5 * th) / params.dt) ** 2
+        self.lag2 = 1.0 / (1.0 + (loop.tau_s * th / params.dt) ** 2)
+        # closed-loop A, affine in the gains: L = Σ K_i C_i · PA, unit negative feedback
+        pa_ss = _tf_to_ss(loop.plant) * _tf_to_ss(loop.actuator)
+        blocks = [control.ss(control.tf(*b)) for b in basis if b is not None]
+        a_c = _blkdiag([np.asarray(b.A, float) for b in blocks])
+        b_c = np.vstack([np.asarray(b.B, float) for b in blocks])
+        c_blocks = [np.asarray(b.C, float) for b in blocks]
+        d_blocks = [float(np.asarray(b.D, float)[0, 0]) for b in blocks]
+        a_p, b_p, c_p = (np.asarray(x, float) for x in (pa_ss.A, pa_ss.B, pa_ss.C))
+        if abs(float(np.asarray(pa_ss.D)[0, 0])) > 0.0:  # pragma: no cover - the plant is strictly proper
+            raise ValueError("plant and actuator must be strictly proper")
+        nc, npa = a_c.shape[0], a_p.shape[0]
+        a0 = np.zeros((nc + npa, nc + npa))
+        a0[:nc, :nc] = a_c
+        a0[:nc, nc:] = -b_c @ c_p
+        a0[nc:, nc:] = a_p
+        self._mats = []
+        col = 0
+        for cb, db in zip(c_blocks, d_blocks):
+            m = np.zeros_like(a0)
+            m[nc:, col:col + cb.shape[1]] = b_p @ cb
+            m[nc:, nc:] -= db * (b_p @ c_p)
+            self._mats.append(m)
+            col += cb.shape[1]
+        if self.has_heel:  # the heel part has weight 1: fold it into A_0
+            a0 = a0 + self._mats.pop()
+        self.a0 = a0
+        p = params
+        act = vessel.actuator_stbd
+        self.usable = usable_angle_rad(p, act, speed_ms)
+        self.rate_limit = min(p.rate_limit, act.rate_limit_rad_s)
+        self.bw_limit = options.bandwidth_fraction / (loop.tau_s + loop.delay_s)
+        self.wn0 = math.sqrt(self.c / self.inertia)
+
+    def gains_of(self, x) -> tuple[float, float, float]:
+        """SI gains of normalised coordinates ``x``."""
+        k = np.asarray(x, float) * self.scale
+        return float(k[0]), float(k[1]), float(k[2])
+
+    def poles(self, gains) -> np.ndarray:
+        a = self.a0 + sum(k * m for k, m in zip(gains, self._mats))
+        return np.linalg.eigvals(a)
+
+    def evaluate(self, gains) -> GainEval:
+        """Every figure the optimiser needs for gains (K_φ, K_p, K_a) (SI)."""
+        o = self.options
+        k = (float(gains[0]), float(gains[1]), float(gains[2]), 1.0)
+        comb = lambda arrs: sum(ki * a for ki, a in zip(k, arrs))  # noqa: E731
+        # stability
+        maxre = float(np.max(self.poles(k[:3]).real))
+        s_stab = -maxre / self.wn0
+        # margins on the log grid
+        lm = comb(self.lm)
+        mag = np.abs(lm)
+        ms = float(np.max(1.0 / np.abs(1.0 + lm)))
+        up = np.nonzero(np.diff(np.sign(mag - 1.0)) != 0)[0]
+        if up.size:
+            near = [i if abs(mag[i] - 1) < abs(mag[i + 1] - 1) else i + 1 for i in up]
+            dist = [abs(math.degrees(np.angle(-lm[i]))) for i in near]
+            j = int(np.argmin(dist))
+            pm, wgc = dist[j], float(self.wm[near[j]])  # the crossing _margins reports
+        else:
+            pm, wgc = 180.0, 0.0
+        im = lm.imag
+        cross = np.nonzero((np.diff(np.sign(im)) != 0) & (lm.real[:-1] < 0))[0]
+        if cross.size:
+            re = [lm.real[i] - im[i] * (lm.real[i + 1] - lm.real[i]) / (im[i + 1] - im[i]) for i in cross]
+            gm_db = min(-20.0 * math.log10(-r) if r < 0 else math.inf for r in re)
+        else:
+            gm_db = math.inf
+        # RMS: statistical linearisation as in _stochastic_rms
+        cw = comb(self.cw)
+        caw = cw * self.aw
+        we, wts = self.we, self.weights
+        b1, b2 = self.vessel.params.b1_n_m_s, self.vessel.params.b2_n_m_s2
+        i_, c_ = self.inertia, self.c
+
+        def rms(b_hull):
+            g = 1.0 / (-i_ * we * we + 1j * (b_hull + self.b_fin) * we + c_)
+            phi = g / (1.0 + self.kf * g * caw)
+            return (float(np.sqrt(np.sum(np.abs(phi) ** 2 * wts))), float(np.sqrt(np.sum(np.abs(phi * we) ** 2 * wts))), phi)
+
+        out = rms(b1)
+        for _ in range(60):
+            new = rms(b1 + _SQRT_8_PI * out[1] * b2)
+            done = abs(new[0] - out[0]) <= 1e-6 * max(new[0], 1e-12)
+            out = new
+            if done:
+                break
+        cmd = cw * out[2]
+        cmd_a = float(np.sqrt(np.sum(np.abs(cmd) ** 2 * wts)))
+        cmd_r = float(np.sqrt(np.sum(np.abs(cmd * we) ** 2 * wts)))
+        if o.roll_noise_rad or o.rate_noise_rad_s:
+            sens = 1.0 / (1.0 + comb(self.cn) * self.pa_n)
+            var = o.roll_noise_rad ** 2 * np.abs(comb(self.hf) * sens) ** 2 + o.rate_noise_rad_s ** 2 * np.abs(comb(self.hp) * sens) ** 2
+            cmd_a = math.hypot(cmd_a, math.sqrt(float(np.mean(var))))
+            cmd_r = math.hypot(cmd_r, math.sqrt(float(np.mean(var * self.diff2))))
+        cap = lambda v: min(v, 180.0)  # noqa: E731  (inf → a finite slack for the optimiser)
+        slack = (
+            s_stab,
+            (cap(gm_db) - o.min_gain_margin_db) / max(o.min_gain_margin_db, 1.0),
+            (cap(pm) - o.min_phase_margin_deg) / max(o.min_phase_margin_deg, 1.0),
+            1.0 - ms / o.max_sensitivity,
+            1.0 - wgc / self.bw_limit,
+            1.0 - o.peak_factor * cmd_a / self.usable,
+            1.0 - o.peak_factor * cmd_r / self.rate_limit,
+        )
+        return GainEval(tuple(k[:3]), out[0] / self.roll_off, out[0], (cmd_a, cmd_r), slack)
+
+
+def _blkdiag(mats):
+    n = sum(m.shape[0] for m in mats)
+    out = np.zeros((n, n))
+    i = 0
+    for m in mats:
+        out[i:i + m.shape[0], i:i + m.shape[0]] = m
+        i += m.shape[0]
+    return out
+
+
+def optimise_gains(gl: GainLoop, shape=None, grid: int = 8) -> GainEval | None:
+    """The feasible gains with the least predicted roll RMS at one speed (None if only zero is).
+
+    ``shape`` None: K_φ, K_p, K_a all free within ``options.max_added`` (normalised coordinates of
+    :class:`GainLoop`). ``shape`` = (K_φ, K_p, K_a): gains = f·shape, only f ≥ 0 free.
+
+    Method: a coarse grid (K_φ on 3 levels, K_p and K_a on ``grid`` levels each, or ``4·grid`` factor
+    levels), then scipy.optimize.minimize with COBYLA (Powell 1994; derivative-free, inequality
+    constraints = the slacks of :class:`GainEval`, bounds = the box) from the best feasible grid point.
+    Every evaluated point is kept; the answer is the best *feasible* one seen, so an optimiser step
+    that ends slightly outside a constraint is never returned.
+    """
+    from scipy.optimize import Bounds, NonlinearConstraint, minimize
+
+    hi = np.asarray(gl.options.max_added, float)
+    cache: dict = {}
+    best: list = [None]
+
+    if shape is None:
+        def to_gains(u):
+            return gl.gains_of(np.clip(u, 0.0, 1.0) * hi)
+        starts = [np.array([a, b, c]) for a in (0.0, 0.05, 0.2) for b in np.linspace(0, 1, grid) for c in np.linspace(0, 1, grid)]
+        n = 3
+    else:
+        sh = np.asarray(shape, float)
+        if not np.any(sh > 0):
+            raise ValueError("shape must have a positive gain")
+        fmax = float(np.min([h * sc / g for h, sc, g in zip(hi, gl.scale, sh) if g > 0]))
+
+        def to_gains(u):
+            f = float(np.clip(u[0], 0.0, 1.0)) * fmax
+            return tuple(float(f * g) for g in sh)
+        starts = [np.array([u]) for u in np.linspace(0.0, 1.0, 4 * grid + 1)]
+        n = 1
+
+    def ev(u) -> GainEval:
+        key = tuple(np.round(np.clip(u, 0.0, 1.0), 12))
+        e = cache.get(key)
+        if e is None:
+            e = cache[key] = gl.evaluate(to_gains(np.asarray(key)))
+            if e.feasible and (best[0] is None or e.ratio < best[0].ratio):
+                best[0] = e
+        return e
+
+    for u in starts:
+        ev(u)
+    if best[0] is None:  # pragma: no cover - zero gains are always feasible for a stable ship
+        return None
+    # start from the best feasible grid point
+    u0 = next(np.asarray(k) for k, e in cache.items() if e is best[0])
+    minimize(lambda u: ev(u).ratio, u0, method="COBYLA", bounds=Bounds(np.zeros(n), np.ones(n)),
+             constraints=[NonlinearConstraint(lambda u: np.asarray(ev(u).slack), 0.0, np.inf)],
+             options={"maxiter": 400, "rhobeg": 0.5 / grid, "tol": 1e-5})
+    return best[0]
+
+
+def _binding(e: GainEval, tol: float = 0.02) -> tuple[str, ...]:
+    return tuple(n for n, s in zip(GainLoop.CONSTRAINTS, e.slack) if s < tol)
+
+
+def _exact_check(vessel, base: ControllerParams, speed_ms: float, gains, sea: SeaState, opts: DesignOptions):
+    """Shrink ``gains`` (scalar, bisection to 0.1 %) until :func:`_violations` (python-control margins,
+    |S|max refined, poles) finds nothing; returns (gains, shrink factor)."""
+    p = replace(base, k_roll=gains[0], k_rate=gains[1], k_accel=gains[2])
+    loop = build_loop(vessel, p, speed_ms, opts)
+    we, weights = wave_grid(sea, vessel, speed_ms)
+    if not _violations(loop, vessel, 1.0, opts, we, weights):
+        return tuple(gains), 1.0
+    lo, hi = 0.0, 1.0
+    while hi - lo > 1e-3:
+        mid = 0.5 * (lo + hi)
+        if _violations(loop, vessel, mid, opts, we, weights):
+            hi = mid
+        else:
+            lo = mid
+    return tuple(lo * g for g in gains), lo
+
+
+def design_speed_rr(vessel, base: ControllerParams, speed_ms: float, sea: SeaState,
+                    options: DesignOptions = DesignOptions(), shape=None) -> tuple[SpeedDesign, GainEval]:
+    """Gains with the largest predicted roll reduction at one speed (see :func:`optimise_gains`).
+
+    ``shape`` None: free shape; else only a factor on ``shape``. The result is re-checked with the
+    exact constraint code (:func:`_violations`) and shrunk if a grid-read margin was optimistic.
+    The returned :class:`SpeedDesign` carries the gains; ``factor`` is the factor on ``shape`` (1 for
+    a free shape).
+    """
+    gl = GainLoop(vessel, base, speed_ms, sea, options)
+    e = optimise_gains(gl, shape)
+    gains, shrink = _exact_check(vessel, base, speed_ms, e.gains, sea, options)
+    if shrink < 1.0:
+        e = gl.evaluate(gains)
+    kn_ = speed_ms / KNOT
+    if shape is None:
+        factor = 1.0
+    else:
+        nz = [(g, s) for g, s in zip(gains, shape) if s > 0]
+        factor = nz[0][0] / nz[0][1]
+    bind = _binding(e)
+    note = f"roll reduction {100 * e.roll_reduction:.1f} % (linear prediction); binding: {', '.join(bind) or 'none (search bounds)'}"
+    return SpeedDesign(kn_, math.nan, float(factor), bind, note, tuple(float(g) for g in gains), e.roll_reduction), e
+
+
 @dataclass(frozen=True)
 class TuneResult:
     """A complete design: per-speed designs, the tuned parameters and their analysis."""
@@ -652,10 +1116,54 @@ def tuned_params(base: ControllerParams, speeds_kn, factors) -> tuple[Controller
     return params, gains, speeds_kn, table
 
 
+OBJECTIVES = ("damping", "roll-reduction")
+
+#: factors of the roll-reduction design are backed off by this fraction before they are written, so
+#: that rounding to 4 significant digits can never carry an active constraint past its limit
+RR_BACKOFF = 2e-3
+
+
+def design_rr(vessel, base: ControllerParams, speeds_kn, sea: SeaState, options: DesignOptions = DesignOptions()):
+    """Roll-reduction design: one gain shape for all speeds plus a factor per speed.
+
+    1. At the reference speed U_ref of ``base`` the three gains are chosen freely (the shape).
+    2. At every design speed the factor on that shape with the largest predicted RR is chosen.
+    3. For comparison, every speed is also optimised with a shape of its own (``free_*`` fields):
+       the difference is what a per-gain schedule could add.
+
+    Returns ``(designs, reference gains)``.
+    """
+    u_ref = base.u_ref
+    ref, _ = design_speed_rr(vessel, base, u_ref, sea, options)
+    shape = ref.gains
+    if not any(g > 0 for g in shape):  # pragma: no cover - only if no feedback at all is feasible
+        raise ValueError("no positive gains satisfy the constraints at the reference speed")
+    designs = []
+    for s in speeds_kn:
+        u = s * KNOT
+        free, _ = design_speed_rr(vessel, base, u, sea, options)
+        d, _ = design_speed_rr(vessel, base, u, sea, options, shape=shape)
+        designs.append(replace(d, free_gains=free.gains, free_roll_reduction=free.roll_reduction))
+    return tuple(designs), shape
+
+
 def design(vessel, base: ControllerParams, speeds_kn, sea: SeaState, options: DesignOptions = DesignOptions()) -> TuneResult:
-    """Design every speed, build the factor table and analyse the result as it will be written."""
-    designs = tuple(design_speed(vessel, base, s * KNOT, sea, options) for s in speeds_kn)
-    params, gains, speeds, table = tuned_params(base, speeds_kn, [d.factor for d in designs])
+    """Design every speed, build the factor table and analyse the result as it will be written.
+
+    ``options.objective`` "damping": the base gain shape, a factor per speed for the target damping
+    (:func:`design_speed`); "roll-reduction": the shape chosen at the reference speed and a factor
+    per speed, both for the largest predicted roll reduction (:func:`design_rr`).
+    """
+    if options.objective not in OBJECTIVES:
+        raise ValueError(f"objective = {options.objective!r}: expected one of {', '.join(OBJECTIVES)}")
+    if options.objective == "roll-reduction":
+        designs, shape = design_rr(vessel, base, speeds_kn, sea, options)
+        base = replace(base, k_roll=shape[0], k_rate=shape[1], k_accel=shape[2])
+        factors = [d.factor * (1.0 - RR_BACKOFF) for d in designs]
+    else:
+        designs = tuple(design_speed(vessel, base, s * KNOT, sea, options) for s in speeds_kn)
+        factors = [d.factor for d in designs]
+    params, gains, speeds, table = tuned_params(base, speeds_kn, factors)
     reports = tuple(analyse_controller(vessel, params, [s * KNOT for s in speeds], sea, options))
     delay = loop_delay_s(base, vessel.actuator_stbd, options.sensor_delay_s)
     return TuneResult(designs, params, gains, speeds, table, reports, sea, options, delay)

@@ -220,6 +220,6 @@ def test_scenario_checks_the_controller_it_names_and_its_sample_rate(tmp_path):
         load_scenario(_write(tmp_path, "r.toml", _scenario_text(**{"control_rate_hz = 50.0": "control_rate_hz = 20.0"})))
     ctl = (ROOT / "configs/controller/demo_pax_135.toml").read_text().replace("rate_deg_s = 22", "rate_deg_s = 0")
     c = _write(tmp_path, "c.toml", ctl)
-    text = _scenario_text().replace(f'"{ROOT}/configs/controller/demo_pax_135.toml"', f'"{c}"')
+    text = _scenario_text().replace(f'"{ROOT}/configs/controller/demo_pax_135_tuned.toml"', f'"{c}"')
     with pytest.raises(ConfigError, match=r"c\.toml: controller\.limits\.rate_deg_s = 0"):
         load_scenario(_write(tmp_path, "s.toml", text))

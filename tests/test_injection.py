@@ -120,10 +120,13 @@ def test_silent_speed_log_latches_the_speed_fault_after_its_hold_time():
 def test_lost_demands_make_the_rig_centre_the_fins_and_the_controller_flag_tracking(spec):
     # a rougher sea (Hs 5 m) and a tighter tracking threshold (1 deg) for the drill, so that the
     # centred fins are clearly off demand for longer than the tracking time
-    base = _scenario().controller
+    from hil.controller_config import load_controller
+
+    base = load_controller("configs/controller/demo_pax_135.toml")  # the untuned demo gains: calm fin motion
     params = dataclasses.replace(base, tracking_error=math.radians(1.0))
     sc, params, rig, run, log = _drill(spec, params=params, hs_m=5.0)
     k0 = int(round(T_INJECT / params.dt))
+    assert not np.any(log["faults"][:k0]) and log["mode"][k0 - 1] == Mode.ACTIVE
     assert rig.watchdog_trips == 1
     # rig side: with no valid demand for the watchdog time the emulated drive centres the fins,
     # reaching centre within watchdog + angle/rate (+ servo lag) steps
