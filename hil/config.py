@@ -471,6 +471,19 @@ def _read_external(top: Reader, disp_kg: float) -> tuple[ExternalMoment, ...]:
     return tuple(out)
 
 
+def read_controller_ref(path: Path, problems: Problems):
+    """The controller file another file names: its parameters, or ``None`` with problems added."""
+    ctable = read_toml(path, problems)
+    if ctable is None:
+        return None
+    from .controller_config import CONTROLLER_TOP_KEY, read_controller_file
+
+    if CONTROLLER_TOP_KEY not in ctable:
+        problems.add(Problem(str(path), "", NO_VALUE, "", "not a controller file (no [controller] table)"))
+        return None
+    return read_controller_file(path, ctable, problems)
+
+
 def _read_comfort(top: Reader):
     """``[comfort]`` (optional): deck point, NORDFORSK criterion, tipping person and a second object."""
     from .comfort import NORDFORSK_NAMES, ComfortSpec
@@ -541,19 +554,10 @@ def read_scenario(path: Path, table: dict, problems: Problems) -> Scenario | Non
                 problems.add(Problem(str(vessel_path), "", NO_VALUE, "", "not a vessel file (no [vessel] table)"))
             else:
                 vessel = read_vessel(vessel_path, vtable, problems)
-    controller = None
-    if controller_path is not None:
-        ctable = read_toml(controller_path, problems)
-        if ctable is not None:
-            from .controller_config import CONTROLLER_TOP_KEY, read_controller_file
-
-            if CONTROLLER_TOP_KEY not in ctable:
-                problems.add(Problem(str(controller_path), "", NO_VALUE, "", "not a controller file (no [controller] table)"))
-            else:
-                controller = read_controller_file(controller_path, ctable, problems)
-        if controller is not None and rate == rate and abs(controller.dt * rate - 1.0) > 1e-9:
-            sr.error("control_rate_hz", rate, "Hz",
-                     f"must equal the controller's sample_rate_hz ({1.0 / controller.dt:g} Hz in {controller_path.name})")
+    controller = read_controller_ref(controller_path, problems) if controller_path is not None else None
+    if controller is not None and rate == rate and abs(controller.dt * rate - 1.0) > 1e-9:
+        sr.error("control_rate_hz", rate, "Hz",
+                 f"must equal the controller's sample_rate_hz ({1.0 / controller.dt:g} Hz in {controller_path.name})")
     disp = vessel.params.displacement_kg if vessel is not None else math.nan
     external = _read_external(top, disp)
     faults = _read_faults(top, duration)

@@ -7,6 +7,9 @@ from pathlib import Path
 import numpy as np
 
 
+_COLOURS = {"off": "tab:gray", "on": "tab:blue"}
+
+
 def _pyplot():
     import matplotlib
 
@@ -18,8 +21,6 @@ def _pyplot():
 
 def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Path]:
     """roll.png: roll angle, wave roll moment and speed against time; roll_spectrum.png (Welch)."""
-    from scipy.signal import welch
-
     plt = _pyplot()
     t = rec["t_s"]
     out = []
@@ -46,13 +47,31 @@ def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Pat
     plt.close(fig)
     out.append(p)
 
-    sel = t >= scenario.warmup_s
-    if np.count_nonzero(sel) > 256:
+    p = _roll_spectra(folder, {"off": rec}, scenario, f"{scenario.name} — roll spectrum (Welch)")
+    if p is not None:
+        out.append(p)
+    return out
+
+
+def _roll_spectra(folder: Path, runs: dict[str, dict[str, np.ndarray]], scenario, title: str) -> Path | None:
+    """roll_spectrum.png: Welch estimates after the warm-up, one line per run (None if too short)."""
+    from scipy.signal import welch
+
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(8, 4.5))
+    drawn = False
+    for mode, rec in runs.items():
+        t = rec["t_s"]
+        sel = (t >= scenario.warmup_s) & np.isfinite(rec["roll_rad"])
+        if np.count_nonzero(sel) <= 256:
+            continue
         fs = 1.0 / (t[1] - t[0])
         # segments of a quarter of the record (7 averages with 50 % overlap): ~0.02 rad/s resolution
         f, s = welch(np.degrees(rec["roll_rad"][sel]), fs=fs, nperseg=np.count_nonzero(sel) // 4)
-        fig, ax = plt.subplots(figsize=(8, 4.5))
-        ax.plot(2 * np.pi * f, s / (2 * np.pi), lw=1.0)
+        ax.plot(2 * np.pi * f, s / (2 * np.pi), lw=1.0, color=_COLOURS[mode], label=f"stabiliser {mode}")
+        drawn = True
+    p = None
+    if drawn:
         w0 = 2 * np.pi / scenario.vessel.params.natural_period_s
         ax.axvline(w0, color="r", ls="--", lw=0.8, label=f"natural roll frequency {w0:.3f} rad/s")
         ax.set_xlim(0, 2.0)
@@ -60,22 +79,17 @@ def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Pat
         ax.set_ylabel("roll spectrum, deg²·s/rad")
         ax.grid(alpha=0.3)
         ax.legend(fontsize=8)
-        ax.set_title(f"{scenario.name} — roll spectrum (Welch)")
+        ax.set_title(title)
         fig.tight_layout()
         p = folder / "roll_spectrum.png"
         fig.savefig(p, dpi=110)
-        plt.close(fig)
-        out.append(p)
-    return out
+    plt.close(fig)
+    return p
 
-
-_COLOURS = {"off": "tab:gray", "on": "tab:blue"}
 
 
 def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scenario, params) -> list[Path]:
     """roll.png (roll on vs off), roll_spectrum.png (Welch, on vs off), fins.png (fin angles with limits)."""
-    from scipy.signal import welch
-
     plt = _pyplot()
     out = []
     name = scenario.name
@@ -101,31 +115,9 @@ def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scena
     plt.close(fig)
     out.append(p)
 
-    fig, ax = plt.subplots(figsize=(8, 4.5))
-    drawn = False
-    for mode, rec in runs.items():
-        t = rec["t_s"]
-        sel = (t >= scenario.warmup_s) & np.isfinite(rec["roll_rad"])
-        if np.count_nonzero(sel) <= 256:
-            continue
-        fs = 1.0 / (t[1] - t[0])
-        f, s = welch(np.degrees(rec["roll_rad"][sel]), fs=fs, nperseg=np.count_nonzero(sel) // 4)
-        ax.plot(2 * np.pi * f, s / (2 * np.pi), lw=1.0, color=_COLOURS[mode], label=f"stabiliser {mode}")
-        drawn = True
-    if drawn:
-        w0 = 2 * np.pi / scenario.vessel.params.natural_period_s
-        ax.axvline(w0, color="r", ls="--", lw=0.8, label=f"natural roll frequency {w0:.3f} rad/s")
-        ax.set_xlim(0, 2.0)
-        ax.set_xlabel("encounter frequency, rad/s")
-        ax.set_ylabel("roll spectrum, deg²·s/rad")
-        ax.grid(alpha=0.3)
-        ax.legend(fontsize=8)
-        ax.set_title(f"{name} — roll spectra (Welch)")
-        fig.tight_layout()
-        p = folder / "roll_spectrum.png"
-        fig.savefig(p, dpi=110)
+    p = _roll_spectra(folder, runs, scenario, f"{name} — roll spectra (Welch)")
+    if p is not None:
         out.append(p)
-    plt.close(fig)
 
     if "on" in runs:
         rec = runs["on"]

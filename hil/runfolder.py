@@ -105,12 +105,14 @@ def new_run_folder(base: Path, stem: str, explicit: Path | None, start: _dt.date
 
 def write_steps_csv(path: Path, records: dict[str, np.ndarray]) -> list[str]:
     """Write the per-step CSV (SI records → trade units, named with their units). Returns the header."""
+    from .recorder import StepRecorder  # the same writer (and reader) as live runs
+
     cols = [(key, name, scale) for key, name, scale in CSV_COLUMNS if key in records]
     header = [name for _, name, _ in cols]
     data = np.column_stack([np.asarray(records[key], dtype=float) * scale for key, _, scale in cols])
-    with path.open("w", encoding="utf-8", newline="") as fh:
-        fh.write(",".join(header) + "\n")
-        np.savetxt(fh, data, delimiter=",", fmt="%.7g")
+    with StepRecorder(path, header, flush_interval_s=1.0, fmt="%.7g") as rec:
+        for row in data.tolist():
+            rec.write(row)
     return header
 
 

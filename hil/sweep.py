@@ -32,7 +32,7 @@ from pathlib import Path
 from plant.constants import G, KNOT
 from plant.excitation import SeaSpec, spectrum_of
 
-from .config import Scenario, _read_sea, load_scenario
+from .config import Scenario, _read_sea, load_scenario, read_controller_ref
 from .configio import NO_VALUE, Problem, Problems, Reader, deg, kn, read_toml
 
 ENVELOPE_TOP_KEY = "envelope"
@@ -126,14 +126,7 @@ def _read_envelope(path: Path, table: dict, problems: Problems) -> Envelope | No
             if not getattr(exc, "problems", None):
                 raise
     if ctl_path is not None:
-        from .controller_config import CONTROLLER_TOP_KEY, read_controller_file
-
-        ctable = read_toml(ctl_path, problems)
-        if ctable is not None:
-            if CONTROLLER_TOP_KEY not in ctable:
-                problems.add(Problem(str(ctl_path), "", NO_VALUE, "", "not a controller file (no [controller] table)"))
-            else:
-                controller = read_controller_file(ctl_path, ctable, problems)
+        controller = read_controller_ref(ctl_path, problems)
     elif base is not None:
         controller, ctl_path = base.controller, base.controller_file
         if controller is None:
