@@ -523,7 +523,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"finloop {args.command}: interrupted", file=sys.stderr)
         return 130
-    except Exception as exc:  # a bug: one line, traceback only on request
+    except Exception as exc:  # a link that cannot be used, or a bug: one line, traceback only on request
+        from .links import LinkError
+
+        if isinstance(exc, LinkError):
+            print(f"finloop {args.command}: link problem: {exc} (is the rig or adapter connected, and the path in the "
+                  "links file right?)", file=sys.stderr)
+            return EXIT_BAD_INPUT
         if args.debug:
             traceback.print_exc()
         print(f"finloop {args.command}: internal error: {type(exc).__name__}: {exc} (rerun with --debug for the traceback)",

@@ -177,10 +177,11 @@ def run_live(params, links, folder: Path, *, time_scale: float = 1.0, duration_s
     }, can_log_format=None, fmt="%.17g")
     can_log = folder / f"can.{links.can.log_format}"
     rec.update_meta(files={"steps": "steps.csv", "can_log": can_log.name})
-    can = open_link(links.can, log_path=can_log)
     serial = {}
     link_errors = {"can": 0}
+    can = None
     try:
+        can = open_link(links.can, log_path=can_log)
         for name, cfg in links.serial_links.items():
             same = [n for n, lk in serial.items() if links.serial_links[n].url == cfg.url]
             if same:
@@ -189,11 +190,12 @@ def run_live(params, links, folder: Path, *, time_scale: float = 1.0, duration_s
             serial[name] = open_link(cfg)
             serial[name].reset_input()
             link_errors[name] = 0
-    except BaseException:
-        can.close()
+    except BaseException as exc:
+        if can is not None:
+            can.close()
         for lk in serial.values():
             lk.close()
-        rec.close("stopped", error="could not open the serial links")
+        rec.close("stopped", error=f"could not open the links: {exc}")
         raise
     lat = Lateness()
     view = _LiveView(core, lat, params) if live_view else None
