@@ -268,3 +268,26 @@ def test_sim_inputs_replayed_through_the_law_give_bit_identical_demands():
     outs = replay_inputs(sc.controller, rows, start_mode=Mode.ACTIVE, speed=sc.setup.speed_values_ms[0])
     assert [o.fin_stbd for o in outs] == list(r["demand_stbd_rad"][:n])
     assert [o.fin_port for o in outs] == list(r["demand_port_rad"][:n])
+
+
+@pytest.mark.parametrize("scenario_file,controller_file", [
+    ("configs/scenarios/beam_sea_service_speed.toml", None),
+    ("configs/scenarios/beam_sea_service_speed.toml", "configs/controller/demo_pax_135.toml"),
+    ("configs/scenarios/quartering_sea.toml", None),
+])
+def test_ideal_bound_is_never_beaten_by_the_controller(scenario_file, controller_file):
+    # The ideal bound (perfect foresight, same fins and limits, hil/ideal.py) is an upper bound by
+    # construction (a feasible controller is one point of the QP's feasible set): the simulated RR
+    # of a real controller on the same sea and seed must not exceed it.
+    from hil.controller_config import load_controller
+    from hil.ideal import ideal_bound
+    from hil.metrics import roll_reduction_pct
+
+    sc = _short(scenario_file, duration=300.0)
+    sc = dataclasses.replace(sc, warmup_s=60.0)
+    params = load_controller(controller_file) if controller_file else sc.controller
+    off = run_passive(sc)
+    on = run_closed_loop(sc, params)
+    rr = roll_reduction_pct(off.metrics, on.metrics)
+    bound = ideal_bound(sc, records=off.records)
+    assert 0.0 < rr < bound.ideal_roll_reduction_pct
