@@ -33,9 +33,9 @@ def _busy(stop):
             x += 1
 
 
-def run(minutes: float, rate_hz: float, params) -> dict:
+def run(minutes: float, rate_hz: float, params, spin_s: float) -> dict:
     n = int(minutes * 60 * rate_hz)
-    fr = FixedRate(1.0 / rate_hz)
+    fr = FixedRate(1.0 / rate_hz, spin_s=spin_s)
     lat = Lateness(n + 10)
     state = initial_state(params, mode=Mode.ACTIVE, speed=10.0)
     for _ in range(n):
@@ -52,18 +52,24 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--minutes", type=float, default=10.0)
     ap.add_argument("--rate-hz", type=float, default=50.0)
+    ap.add_argument("--spin-ms", type=float, default=1.2, help="wake this long before each deadline and spin (default 1.2 ms)")
+    ap.add_argument("--only", choices=["idle", "busy"], default=None, help="run one of the two cases")
     args = ap.parse_args()
     params = load_controller(ROOT / "configs/controller/demo_pax_135.toml")
     rep = request_realtime()
     print(f"real-time request: fifo priority {rep.fifo_priority}, timer slack {rep.timer_slack_ns} ns; {'; '.join(rep.notes)}")
-    for label, load in (("idle", False), ("one busy core", True)):
+    print(f"spin window {args.spin_ms:g} ms")
+    cases = (("idle", False), ("one busy core", True))
+    if args.only:
+        cases = cases[:1] if args.only == "idle" else cases[1:]
+    for label, load in cases:
         stop = mp.Event()
         proc = None
         if load:
             proc = mp.Process(target=_busy, args=(stop,), daemon=True)
             proc.start()
         try:
-            s = run(args.minutes, args.rate_hz, params)
+            s = run(args.minutes, args.rate_hz, params, args.spin_ms / 1000.0)
         finally:
             stop.set()
             if proc is not None:

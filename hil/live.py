@@ -161,7 +161,7 @@ def _write_rig_records(folder: Path, core) -> None:
 
 def run_live(params, links, folder: Path, *, time_scale: float = 1.0, duration_s: float | None = None,
              engage: bool = True, injections: tuple[Injection, ...] = (), feedback_timeout_s: float = 0.1,
-             live_view: bool = True, realtime: bool = True, controller_file: str = "") -> dict:
+             live_view: bool = True, realtime: bool = True, controller_file: str = "", spin_s: float = 0.0012) -> dict:
     """Step the controller at its rate against ``links`` until SIGINT/SIGTERM or ``duration_s``."""
     from .links import LinkError, open_link
     from .runner import STEP_COLUMNS, RunnerCore
@@ -205,7 +205,7 @@ def run_live(params, links, folder: Path, *, time_scale: float = 1.0, duration_s
     t_start = time.monotonic()
     try:
         with _Stop() as stop, (view.live() if view else _Null()):
-            fr = FixedRate(dt / time_scale, clock=time.monotonic)
+            fr = FixedRate(dt / time_scale, spin_s=spin_s, clock=time.monotonic)
             overrun = False
             while True:
                 k, late, missed = fr.wait()
