@@ -82,9 +82,9 @@ def register(sub) -> None:
     u.add_argument("--inject", action="append", default=[], metavar="DRILL", help="runner-side fault drill: drop-demand@T[+D] or corrupt-demand@T[+D]")
     u.add_argument("--feedback-timeout-s", type=float, default=0.1, help="fin feedback older than this is invalid (default 0.1 s)")
     u.add_argument("--no-live", action="store_true", help="no live terminal view")
-    u.add_argument("--spin-ms", type=float, default=1.2,
-                   help="wake this long before each step's deadline and spin to it (default 1.2 ms; more = steadier "
-                        "timing on virtual machines, at the cost of CPU)")
+    u.add_argument("--spin-ms", type=float, default=None,
+                   help="wake this long before each step's deadline and spin to it (default: 5 ms or a quarter of a "
+                        "step, whichever is less; less = less CPU, more = steadier timing on virtual machines)")
     u.add_argument("--out", default=None, help="run folder to create (new or empty); default RUNS_DIR/run-<UTC time>")
     u.add_argument("--runs-dir", default="runs", help="parent folder for run folders (default ./runs)")
     u.add_argument("--json", action="store_true", help="print the summary as JSON at the end")
@@ -180,6 +180,8 @@ def cmd_run(args) -> int:
     scale = _time_scale(args.time_scale)
     if not links.emulated and scale != 1.0:
         raise UsageError("--time-scale other than 1 is only for emulated rigs (real hardware runs in real time)")
+    if args.spin_ms is None:
+        args.spin_ms = min(5.0, 0.25 * params.dt * 1000.0 / scale)
     if not (0.0 <= args.spin_ms <= 0.5 * params.dt * 1000.0 / scale):
         raise UsageError(f"--spin-ms = {args.spin_ms!r}: must be between 0 and half a step ({0.5 * params.dt * 1000.0 / scale:g} ms)")
     if not (0.0 < args.feedback_timeout_s <= 5.0):

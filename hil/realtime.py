@@ -23,7 +23,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-SPIN_S = 0.0012  # wake this long before the deadline, then spin
+SPIN_S = 0.0012  # wake this long before the deadline, then spin (the runner uses up to 5 ms, see
+# `finloop run --spin-ms`: on a virtual machine an idle vCPU can take > 1 ms to wake)
 
 
 @dataclass
