@@ -322,8 +322,10 @@ def _sweep_text(env, rows, summary, folder) -> str:
     for r in rows:
         flags = ",".join(f for f, on in (("synchronous", r["synchronous"]), ("saturated", r["saturated"]),
                                           ("STOPPED", bool(r["stopped_early"]))) if on)
+        rr = r["roll_reduction_pct"]
+        rr_text = f"{rr:7.1f}" if math.isfinite(rr) else f"{'-':>7s}"  # no roll without the stabiliser (e.g. following seas)
         lines.append(f"  {r['sea_state'][:10]:>10s} {r['speed_kn']:8.1f} {r['heading_deg']:8.0f} {r['roll_std_off_deg']:8.2f} "
-                     f"{r['roll_std_on_deg']:8.2f} {r['roll_reduction_pct']:7.1f} {r['fin_rms_deg']:8.2f} "
+                     f"{r['roll_std_on_deg']:8.2f} {rr_text} {r['fin_rms_deg']:8.2f} "
                      f"{r['encounter_to_roll_period_ratio']:8.2f}  {flags}")
     lines.append(f"  run folder {folder}")
     return "\n".join(lines)

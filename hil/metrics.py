@@ -88,6 +88,11 @@ def fin_metrics(records: dict[str, np.ndarray], warmup_s: float) -> dict[str, fl
     return out
 
 
+MIN_ROLL_FOR_RR_DEG = 0.01
+"""Below this passive roll σ (deg) a roll reduction is not reported (our threshold: a ratio of
+two numbers at sensor-noise level means nothing)."""
+
+
 def roll_reduction_pct(off: dict[str, float], on: dict[str, float]) -> float:
     """RR = 100·(1 − σ_on/σ_off), σ the roll standard deviation (about the mean) after warm-up.
 
@@ -95,6 +100,6 @@ def roll_reduction_pct(off: dict[str, float], on: dict[str, float]) -> float:
     a steady heel is not roll and does not count.
     """
     s_off = off["roll_std_deg"]
-    if not (s_off > 0.0):
-        return float("nan")
+    if not (s_off >= MIN_ROLL_FOR_RR_DEG):
+        return float("nan")  # no roll to reduce (e.g. head or following seas): RR is undefined
     return 100.0 * (1.0 - on["roll_std_deg"] / s_off)
