@@ -23,7 +23,8 @@ RUN_EPILOG = """\
 Fault drills on the runner side (--inject, repeatable): drop-demand@T[+D], corrupt-demand@T[+D].
 
 Stop with Ctrl-C (or SIGTERM): the runner asks the controller for OFF, keeps sending demands
-until both fins are demanded to centre, then closes the links and the recorder.
+until both fins are demanded to centre and their feedback reports centre (within 0.5 deg;
+at most angle/rate + 1 s), then closes the links and the recorder.
 """
 
 

@@ -198,10 +198,16 @@ class RunnerCore:
                 *(float(x) for x in inp[:17]), float(inp.bench_signal), float(inp.overrun),
                 out.fin_port, out.fin_stbd, int(out.mode), int(out.faults), int(out.limiter), out.command, out.speed_factor]
 
-    def centred(self) -> bool:
-        """Demands at centre and the controller OFF/STANDBY/FAULT (safe to close the links)."""
-        out = self.last_out
-        return out is not None and out.fin_port == 0.0 and out.fin_stbd == 0.0 and out.mode in (Mode.OFF, Mode.FAULT)
+    def centred(self, tolerance_rad: float = math.radians(0.5)) -> bool:
+        """Safe to close the links: demands at centre, the controller OFF or FAULT, and every fin
+        whose feedback is valid reported within ``tolerance_rad`` of centre."""
+        out, inp = self.last_out, self.last_inputs
+        if out is None or out.fin_port != 0.0 or out.fin_stbd != 0.0 or out.mode not in (Mode.OFF, Mode.FAULT):
+            return False
+        for angle, ok in ((inp.fin_port, inp.fin_port_valid), (inp.fin_stbd, inp.fin_stbd_valid)):
+            if ok and not abs(angle) <= tolerance_rad:
+                return False
+        return True
 
     def summary(self) -> dict:
         return {
