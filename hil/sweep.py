@@ -38,6 +38,17 @@ from .configio import NO_VALUE, Problem, Problems, Reader, deg, kn, read_toml
 ENVELOPE_TOP_KEY = "envelope"
 
 
+def _one_blas_thread() -> None:
+    """Process-pool initializer: limit native thread pools (BLAS, OpenMP) to one thread."""
+    from threadpoolctl import threadpool_limits
+
+    global _LIMITS
+    _LIMITS = threadpool_limits(1)  # kept alive for the worker's life
+
+
+_LIMITS = None
+
+
 @dataclass(frozen=True)
 class SeaState:
     name: str
@@ -242,7 +253,11 @@ def run_sweep(env: Envelope, executor: Executor | None = None, workers: int | No
                 progress(i + 1, len(pts))
         return rows  # type: ignore[return-value]
     own = executor is None
-    ex = executor if executor is not None else ProcessPoolExecutor(max_workers=workers or os.cpu_count() or 1)
+    # One BLAS thread per worker (threadpoolctl): numpy's BLAS would otherwise run a thread per core
+    # in every worker and the workers would fight over the cores (measured on 2 cores: two workers
+    # 1.25× the speed of one without this, 1.8× with it).
+    ex = executor if executor is not None else ProcessPoolExecutor(
+        max_workers=workers or os.cpu_count() or 1, initializer=_one_blas_thread)
     try:
         futs = {ex.submit(run_point, env, pt): pt.index for pt in pts}
         done = 0
