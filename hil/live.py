@@ -115,8 +115,7 @@ def serve_rig(scenario, links, folder: Path, *, seed=None, time_scale: float = 1
                 for f in can_dev.poll(0.0):
                     if rec.can_log:
                         rec.can_log.log_frame(f.arbitration_id, f.data, is_extended_id=f.is_extended_id, is_rx=True)
-                    if not core._active_at("bus-error", None, core.t_s):
-                        core.on_can(f.arbitration_id, f.data, is_extended=f.is_extended_id, is_remote=f.is_remote)
+                    core.on_can(f.arbitration_id, f.data, is_extended=f.is_extended_id, is_remote=f.is_remote)
                 out = core.step()
                 for fid, data in out.can:
                     can_dev.send(fid, data)
@@ -134,7 +133,7 @@ def serve_rig(scenario, links, folder: Path, *, seed=None, time_scale: float = 1
                         ep.read_available()  # nothing is expected from the host; keep the pty drained
                 m = core.meas
                 rec.write_step((core.t_s, late * 1e6, m.roll_rad, m.roll_rate_rad_s, m.speed_ms, core.demand[0],
-                                core.demand[1], m.fin_port_rad, m.fin_stbd_rad, float(core._watchdog_on)))
+                                core.demand[1], m.fin_port_rad, m.fin_stbd_rad, float(core.watchdog_on)))
     except BaseException as exc:
         status, stop_reason = "stopped", f"{type(exc).__name__}: {exc}"
         raise

@@ -88,7 +88,7 @@ class RigCore:
         self.hb_counter = 0
         self.delayed: deque[tuple[int, int, bytes]] = deque()
         self.watchdog_trips = 0
-        self._watchdog_on = False
+        self.watchdog_on = False  # the emulated drive is centring the fins for want of demands
         self.angle_limit = {"port": scenario.setup.actuator_port.angle_limit_rad,
                             "stbd": scenario.setup.actuator_stbd.angle_limit_rad}
 
@@ -104,6 +104,8 @@ class RigCore:
         """A frame from the bus; FIN_DEMAND frames set the servo targets, others are ignored."""
         if arbitration_id != self.ids.fin_demand:
             return  # status / heartbeats of other nodes: not for the servo drive
+        if self._active_at("bus-error", None, self.t_s) is not None:
+            return  # bus-error drill: the adapter hears nothing
         r = self.counters.count(decode_frame(arbitration_id, data, self.ids, is_remote=is_remote, is_extended=is_extended))
         if type(r) is not FinDemand:
             return
@@ -117,9 +119,9 @@ class RigCore:
         """One control period of the plant; returns the frames and bytes to publish."""
         out = RigOutput()
         stale = self.last_demand_k is None or self.k - self.last_demand_k > self.watchdog_steps
-        if stale and self.last_demand_k is not None and not self._watchdog_on:
+        if stale and self.last_demand_k is not None and not self.watchdog_on:
             self.watchdog_trips += 1
-        self._watchdog_on = stale
+        self.watchdog_on = stale
         dp, ds = (0.0, 0.0) if stale else self.demand
         t_step = self.t_s
         bus_down = self._active_at("bus-error", None, t_step) is not None
