@@ -8,13 +8,14 @@ Unit conversions checked by hand: 1 kn = 1852/3600 m/s (international nautical m
 from __future__ import annotations
 
 import math
-import re
 
 import pytest
 
 from controller import ControllerParams
-from hil.configio import ConfigError, Problems
+from hil.configio import Problems
 from hil.controller_config import CONTROLLER_TOP_KEY, load_controller, read_controller_file
+
+from .config_helpers import edited_copy, error_lines
 
 from .test_controller_support import DEMO
 
@@ -23,21 +24,11 @@ TEXT = DEMO.read_text(encoding="utf-8")
 
 def variant(tmp_path, *edits, name="ctl.toml"):
     """The demo file with regex edits (pattern, replacement) applied; each must match once."""
-    text = TEXT
-    for pattern, repl in edits:
-        text, n = re.subn(pattern, repl, text, count=1, flags=re.M)
-        assert n == 1, pattern
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
+    return edited_copy(tmp_path, TEXT, edits, name)
 
 
 def errors_of(path):
-    with pytest.raises(ConfigError) as info:
-        load_controller(path)
-    lines = str(info.value).splitlines()
-    assert all(line.startswith(str(path) + ": ") for line in lines), lines
-    return lines
+    return error_lines(load_controller, path)
 
 
 def test_demo_file_loads_without_errors_or_warnings_and_converts_to_si():

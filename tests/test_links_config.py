@@ -10,13 +10,12 @@ pyserial 3.5 documentation (URL handlers: ``loop://``, ``socket://<host>:<port>`
 
 from __future__ import annotations
 
-import re
 import time
 from pathlib import Path
 
 import pytest
 
-from hil.configio import ConfigError, Problems, read_toml
+from hil.configio import Problems, read_toml
 from hil.links_config import (
     SLCAN_BITRATES,
     CanLinkConfig,
@@ -26,6 +25,8 @@ from hil.links_config import (
     read_links_file,
 )
 
+from .config_helpers import edited_copy, error_lines
+
 ROOT = Path(__file__).resolve().parents[1]
 EMULATED = ROOT / "configs" / "links" / "emulated_rig.toml"
 HARDWARE = ROOT / "configs" / "links" / "example_rig_hardware.toml"
@@ -33,22 +34,12 @@ TEXT = EMULATED.read_text(encoding="utf-8")
 
 
 def variant(tmp_path, *edits, name="links.toml"):
-    """The emulated-rig file with regex edits (pattern, replacement) applied; each must match once."""
-    text = TEXT
-    for pattern, repl in edits:
-        text, n = re.subn(pattern, repl, text, count=1, flags=re.M)
-        assert n == 1, pattern
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
+    """The demo file with regex edits (pattern, replacement) applied; each must match once."""
+    return edited_copy(tmp_path, TEXT, edits, name)
 
 
 def errors_of(path):
-    with pytest.raises(ConfigError) as info:
-        load_links(path)
-    lines = str(info.value).splitlines()
-    assert all(line.startswith(str(path) + ": ") for line in lines), lines
-    return lines
+    return error_lines(load_links, path)
 
 
 def test_emulated_rig_file_loads_without_problems():
