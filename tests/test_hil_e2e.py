@@ -122,3 +122,32 @@ def test_sigterm_makes_the_runner_centre_the_fins_and_close_cleanly(tmp_path):
     data = np.genfromtxt(tmp_path / "run" / "steps.csv", delimiter=",", names=True)
     assert data["demand_port_rad"][-1] == 0.0 and data["demand_stbd_rad"][-1] == 0.0
     assert json.loads((tmp_path / "rig" / "meta.json").read_text())["status"] == "stopped"
+
+
+def test_a_drill_through_the_real_links_latches_the_documented_fault_and_centres_the_fins(tmp_path):
+    # drop-feedback:port on the rig (hil/injection.py matrix): over the pty slcan path the runner
+    # must latch FEEDBACK_PORT within the feedback timeout (0.1 s) + debounce (3 steps) + transport,
+    # here allowed 0.5 s of run time for process start-up offset and scheduling jitter, and the
+    # demands must be at centre within angle/rate (25/22 s ≈ 1.14 s) after that.
+    from controller import Fault
+
+    sc, links = _files(tmp_path, duration_s=30.0)
+    rig = _start_rig(tmp_path, sc, links, "--inject", "drop-feedback:port@15")
+    try:
+        run = subprocess.run(_run_cmd(tmp_path, links, "--duration-s", "22"), cwd=ROOT, capture_output=True, text=True,
+                             timeout=120)
+    finally:
+        rig.send_signal(signal.SIGTERM)
+        rig.wait(timeout=30)
+    assert run.returncode == 0, run.stderr
+    res = json.loads(run.stdout)
+    assert res["final_faults"] & int(Fault.FEEDBACK_PORT)
+    data = np.genfromtxt(tmp_path / "run" / "steps.csv", delimiter=",", names=True)
+    faulted = np.nonzero(data["faults"].astype(int) & int(Fault.FEEDBACK_PORT))[0]
+    t_fault = data["t_s"][faulted[0]]
+    assert 15.0 <= t_fault <= 15.5, t_fault
+    assert not np.any(data["faults"][data["t_s"] < 15.0])
+    k = faulted[0]
+    centre = np.nonzero((data["demand_port_rad"][k:] == 0.0) & (data["demand_stbd_rad"][k:] == 0.0))[0]
+    assert centre.size and data["t_s"][k + centre[0]] - t_fault <= 25.0 / 22.0 + 0.05
+    assert np.all(data["demand_port_rad"][k + centre[0]:] == 0.0)
