@@ -10,6 +10,20 @@ import numpy as np
 _COLOURS = {"off": "tab:gray", "on": "tab:blue"}
 
 
+def _tidy(ax) -> None:
+    """Legend top right and a light grid (every time-series panel)."""
+    ax.legend(loc="upper right", fontsize=8)
+    ax.grid(alpha=0.3)
+
+
+def _save(fig, path: Path) -> Path:
+    """Lay out, write the PNG and free the figure; returns the path."""
+    fig.tight_layout()
+    fig.savefig(path, dpi=110)
+    _pyplot().close(fig)
+    return path
+
+
 def _pyplot():
     import matplotlib
 
@@ -28,24 +42,18 @@ def plot_passive(folder: Path, rec: dict[str, np.ndarray], scenario) -> list[Pat
     ax[0].plot(t, np.degrees(rec["roll_rad"]), lw=0.7, label="roll (true)")
     ax[0].axvspan(0, scenario.warmup_s, color="0.9", label="warm-up (not in statistics)")
     ax[0].set_ylabel("roll, deg")
-    ax[0].legend(loc="upper right", fontsize=8)
-    ax[0].grid(alpha=0.3)
+    _tidy(ax[0])
     ax[1].plot(t, rec["wave_moment_n_m"] / 1e3, lw=0.6, label="wave")
     if np.any(rec["external_moment_n_m"]):
         ax[1].plot(t, rec["external_moment_n_m"] / 1e3, lw=0.9, label="external")
     ax[1].set_ylabel("roll moment, kN·m")
-    ax[1].legend(loc="upper right", fontsize=8)
-    ax[1].grid(alpha=0.3)
+    _tidy(ax[1])
     ax[2].plot(t, rec["speed_ms"] / (1852 / 3600), lw=0.9)
     ax[2].set_ylabel("speed, kn")
     ax[2].set_xlabel("time, s")
     ax[2].grid(alpha=0.3)
     fig.suptitle(f"{scenario.name} — stabiliser off")
-    fig.tight_layout()
-    p = folder / "roll.png"
-    fig.savefig(p, dpi=110)
-    plt.close(fig)
-    out.append(p)
+    out.append(_save(fig, folder / "roll.png"))
 
     p = _roll_spectra(folder, {"off": rec}, scenario, f"{scenario.name} — roll spectrum (Welch)")
     if p is not None:
@@ -98,22 +106,16 @@ def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scena
         ax[0].plot(rec["t_s"], np.degrees(rec["roll_rad"]), lw=0.7, color=_COLOURS[mode], label=f"stabiliser {mode}")
     ax[0].axvspan(0, scenario.warmup_s, color="0.92", label="warm-up (not in statistics)")
     ax[0].set_ylabel("roll, deg")
-    ax[0].legend(loc="upper right", fontsize=8)
-    ax[0].grid(alpha=0.3)
+    _tidy(ax[0])
     rec = next(iter(runs.values()))
     ax[1].plot(rec["t_s"], rec["wave_moment_n_m"] / 1e3, lw=0.6, color="tab:green", label="wave")
     if "on" in runs:
         ax[1].plot(runs["on"]["t_s"], runs["on"]["fin_moment_n_m"] / 1e3, lw=0.6, color="tab:blue", label="fins (on)")
     ax[1].set_ylabel("roll moment, kN·m")
     ax[1].set_xlabel("time, s")
-    ax[1].legend(loc="upper right", fontsize=8)
-    ax[1].grid(alpha=0.3)
+    _tidy(ax[1])
     fig.suptitle(f"{name} — roll")
-    fig.tight_layout()
-    p = folder / "roll.png"
-    fig.savefig(p, dpi=110)
-    plt.close(fig)
-    out.append(p)
+    out.append(_save(fig, folder / "roll.png"))
 
     p = _roll_spectra(folder, runs, scenario, f"{name} — roll spectra (Welch)")
     if p is not None:
@@ -129,8 +131,7 @@ def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scena
         ax[0].axhline(a, color="r", lw=0.8, ls="--", label=f"angle limit ±{a:.0f} deg")
         ax[0].axhline(-a, color="r", lw=0.8, ls="--")
         ax[0].set_ylabel("fin angle, deg")
-        ax[0].legend(loc="upper right", fontsize=8)
-        ax[0].grid(alpha=0.3)
+        _tidy(ax[0])
         ae = np.degrees(rec["fin_stbd_alpha_eff_rad"])
         ax[1].plot(t, ae, lw=0.6, color="tab:orange", label="starboard effective angle of attack")
         st = np.degrees(scenario.vessel.fin_stbd.stall_angle_rad)
@@ -138,12 +139,7 @@ def plot_closed_loop(folder: Path, runs: dict[str, dict[str, np.ndarray]], scena
         ax[1].axhline(-st, color="r", lw=0.8, ls="--")
         ax[1].set_ylabel("angle, deg")
         ax[1].set_xlabel("time, s")
-        ax[1].legend(loc="upper right", fontsize=8)
-        ax[1].grid(alpha=0.3)
+        _tidy(ax[1])
         fig.suptitle(f"{name} — fins (stabiliser on)")
-        fig.tight_layout()
-        p = folder / "fins.png"
-        fig.savefig(p, dpi=110)
-        plt.close(fig)
-        out.append(p)
+        out.append(_save(fig, folder / "fins.png"))
     return out

@@ -212,6 +212,13 @@ def _number(s: str) -> float | Reject:
     return float(s)
 
 
+# XDR transducer name → (reading kind, transducer type, unit letter, plausibility limit in deg or deg/s)
+_XDR_QUANTITIES = {
+    "ROLL": ("roll", "A", "D", ROLL_MAX_DEG),  # angular displacement, degrees (NMEA 0183 XDR)
+    "ROLLRATE": ("roll_rate", "G", "", RATE_MAX_DEG_S),  # our convention: generic type, deg/s
+}
+
+
 def decode_xdr(s: Sentence) -> list[tuple[str, float]] | Reject:
     """Roll (rad) and roll rate (rad/s) from an XDR sentence: ``[("roll", φ), ("roll_rate", p)]``.
 
@@ -227,24 +234,18 @@ def decode_xdr(s: Sentence) -> list[tuple[str, float]] | Reject:
     out: list[tuple[str, float]] = []
     for i in range(0, n, 4):
         typ, val, unit, name = f[i], f[i + 1], f[i + 2], f[i + 3]
-        if name == "ROLL":
-            if typ != "A" or unit != "D":
-                return _R["unit"]
-            v = _number(val)
-            if type(v) is Reject:
-                return v
-            if abs(v) > ROLL_MAX_DEG:
-                return _R["range"]
-            out.append(("roll", v * _DEG))
-        elif name == "ROLLRATE":
-            if typ != "G" or unit != "":
-                return _R["unit"]
-            v = _number(val)
-            if type(v) is Reject:
-                return v
-            if abs(v) > RATE_MAX_DEG_S:
-                return _R["range"]
-            out.append(("roll_rate", v * _DEG))
+        spec = _XDR_QUANTITIES.get(name)
+        if spec is None:
+            continue  # other transducers on the same sentence are not ours
+        kind, want_typ, want_unit, limit = spec
+        if typ != want_typ or unit != want_unit:
+            return _R["unit"]
+        v = _number(val)
+        if type(v) is Reject:
+            return v
+        if abs(v) > limit:
+            return _R["range"]
+        out.append((kind, v * _DEG))
     if not out:
         return _R["no_data"]
     return out
